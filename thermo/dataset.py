@@ -1,0 +1,212 @@
+"""Loading and validating heatpath datasets.
+
+A dataset is a directory under ``thermo/data/`` holding ``manifest.toml`` (id,
+oxide components, validity domain, list of files) and the files it lists. Its
+checksum is the SHA-256 of the manifest and every listed file (name and bytes,
+in manifest order), so any change to the data changes the stamp results carry.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import math
+import tomllib
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from thermo.composition import oxide_stoichiometry
+from thermo.elements import molar_mass_g_per_mol
+from thermo.endmembers import EndmemberParameters
+from thermo.errors import DatasetError, HeatpathError, InputError
+
+DATA_DIR = Path(__file__).resolve().parent / "data"
+DEFAULT_DATASET_ID = "heatpath-ncfmas-2026a"
+
+_REQUIRED = (
+    "h0_j_per_mol", "s0_j_per_mol_k", "v0_m3_per_mol", "cp_a_j_per_mol_k", "cp_b_j_per_mol_k2",
+    "cp_c_j_k_per_mol", "cp_d_j_per_mol_k05", "alpha0_per_k", "k0_gpa", "k0_prime", "k0_dprime_per_gpa",
+)
+_LANDAU = ("landau_tc0_k", "landau_smax_j_per_mol_k", "landau_vmax_m3_per_mol")
+_ORDER = ("order_dh_j_per_mol", "order_dv_m3_per_mol", "order_w_j_per_mol", "order_wv_m3_per_mol", "order_n", "order_factor")
+_TEXT = ("name", "formula", "state", "confidence", "recall_status", "source")
+_POSITIVE = ("v0_m3_per_mol", "k0_gpa", "n_atoms")
+#: Oxides of cations outside a dataset's components; endmembers carrying them load
+#: (for standard-state queries) but are kept out of phase-equilibrium calculations.
+OUTSIDE_OXIDES = ("TiO2", "Cr2O3", "K2O", "MnO", "NiO", "P2O5", "H2O")
+
+
+@dataclass(frozen=True)
+class EndmemberInfo:
+    """Descriptive data of one endmember."""
+
+    name: str
+    formula: str
+    state: str
+    molar_mass_kg_per_mol: float
+    source: str
+    confidence: str
+    recall_status: str
+    notes: str
+
+
+@dataclass(frozen=True)
+class Dataset:
+    """A loaded, validated dataset."""
+
+    id: str
+    title: str
+    checksum: str
+    oxides: tuple[str, ...]
+    pressure_range_gpa: tuple[float, float]
+    temperature_range_k: tuple[float, float]
+    endmembers: EndmemberParameters
+    info: dict[str, EndmemberInfo]
+    stoichiometry: np.ndarray  # (n_endmembers, n_oxides) moles of oxide per formula unit
+    in_system: np.ndarray  # (n_endmembers,) True where the endmember lies inside ``oxides``
+    extra: dict[str, Any] = field(default_factory=dict)  # other parsed files, by stem
+
+    def index(self, name: str) -> int:
+        """Position of an endmember; raises :class:`InputError` for unknown names."""
+        try:
+            return self.endmembers.names.index(name)
+        except ValueError:
+            raise InputError("endmember", f"unknown endmember {name!r} in dataset {self.id}") from None
+
+    @property
+    def molar_mass_kg_per_mol(self) -> np.ndarray:
+        return np.array([self.info[n].molar_mass_kg_per_mol for n in self.endmembers.names])
+
+
+def _num(path: Path, row: int, name: str, key: str, raw: str, required: bool) -> float:
+    raw = (raw or "").strip()
+    if not raw:
+        if required:
+            raise DatasetError(f"{path.name}: row {row} ({name}): field {key!r} is missing")
+        return math.nan
+    try:
+        value = float(raw)
+    except ValueError:
+        raise DatasetError(f"{path.name}: row {row} ({name}): field {key!r} is not a number: {raw!r}") from None
+    if not math.isfinite(value):
+        raise DatasetError(f"{path.name}: row {row} ({name}): field {key!r} is not finite")
+    return value
+
+
+def _read_row(path: Path, row_no: int, rec: dict[str, str], oxides: tuple[str, ...]):
+    name = (rec.get("name") or "").strip()
+    for key in _TEXT:
+        if not (rec.get(key) or "").strip():
+            raise DatasetError(f"{path.name}: row {row_no} ({name or '?'}): field {key!r} is missing")
+    if rec["state"] not in ("solid", "liquid"):
+        raise DatasetError(f"{path.name}: row {row_no} ({name}): field 'state' must be 'solid' or 'liquid'")
+    vals = {k: _num(path, row_no, name, k, rec.get(k, ""), True) for k in (*_REQUIRED, "n_atoms")}
+    vals.update({k: _num(path, row_no, name, k, rec.get(k, ""), False) for k in (*_LANDAU, *_ORDER)})
+    for key in _POSITIVE:
+        if vals[key] <= 0:
+            raise DatasetError(f"{path.name}: row {row_no} ({name}): field {key!r} must be positive")
+    for group in (_LANDAU, _ORDER):
+        present = [not math.isnan(vals[k]) for k in group]
+        if any(present) and not all(present):
+            raise DatasetError(f"{path.name}: row {row_no} ({name}): fields {', '.join(group)} must be all set or all empty")
+    try:
+        mass = molar_mass_g_per_mol(rec["formula"]) / 1000.0
+        stoich = oxide_stoichiometry(rec["formula"], oxides + OUTSIDE_OXIDES)
+    except HeatpathError as exc:
+        raise DatasetError(f"{path.name}: row {row_no} ({name}): field 'formula': {exc}") from None
+    info = EndmemberInfo(name, rec["formula"], rec["state"], mass, rec["source"], rec["confidence"],
+                         rec["recall_status"], (rec.get("notes") or "").strip())
+    return vals, info, stoich
+
+
+def read_endmembers(path: Path, oxides: tuple[str, ...]):
+    """Read and validate an endmember CSV; returns parameters, info and stoichiometry."""
+    rows, infos, stoich = [], {}, []
+    with path.open(encoding="utf-8", newline="") as fh:
+        for row_no, rec in enumerate(csv.DictReader(fh), start=2):
+            vals, info, vec = _read_row(path, row_no, rec, oxides)
+            if info.name in infos:
+                raise DatasetError(f"{path.name}: row {row_no}: duplicate endmember name {info.name!r}")
+            rows.append(vals)
+            infos[info.name] = info
+            stoich.append(vec)
+    if not rows:
+        raise DatasetError(f"{path.name}: no endmember rows")
+    col = {k: np.array([r[k] for r in rows]) for k in rows[0]}
+    params = EndmemberParameters(
+        names=tuple(infos),
+        is_liquid=np.array([i.state == "liquid" for i in infos.values()]),
+        n_atoms=col["n_atoms"], h0=col["h0_j_per_mol"], s0=col["s0_j_per_mol_k"], v0=col["v0_m3_per_mol"],
+        cp_a=col["cp_a_j_per_mol_k"], cp_b=col["cp_b_j_per_mol_k2"], cp_c=col["cp_c_j_k_per_mol"],
+        cp_d=col["cp_d_j_per_mol_k05"], alpha0=col["alpha0_per_k"], k0_pa=col["k0_gpa"] * 1e9,
+        k0_prime=col["k0_prime"], k0_dprime_per_pa=col["k0_dprime_per_gpa"] * 1e-9,
+        landau=np.stack([col[k] for k in _LANDAU], axis=1),
+        order=np.stack([col[k] for k in _ORDER], axis=1),
+    )
+    return params, infos, np.array(stoich)
+
+
+def checksum(directory: Path, files: list[str]) -> str:
+    """SHA-256 over the manifest and the listed files (name and bytes)."""
+    digest = hashlib.sha256()
+    for name in ["manifest.toml", *files]:
+        digest.update(name.encode() + b"\0")
+        digest.update((directory / name).read_bytes())
+    return digest.hexdigest()
+
+
+def _manifest(directory: Path) -> dict[str, Any]:
+    path = directory / "manifest.toml"
+    try:
+        man = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, tomllib.TOMLDecodeError) as exc:
+        raise DatasetError(f"{path}: cannot read manifest: {exc}") from None
+    for key in ("id", "title", "oxides", "files", "validity"):
+        if key not in man:
+            raise DatasetError(f"{path.name}: missing key {key!r}")
+    for key in ("pressure_gpa", "temperature_k"):
+        rng = man["validity"].get(key)
+        if not (isinstance(rng, list) and len(rng) == 2 and rng[0] < rng[1]):
+            raise DatasetError(f"{path.name}: validity.{key} must be [low, high] with low < high")
+    return man
+
+
+def load_dataset_dir(directory: Path) -> Dataset:
+    """Load and validate the dataset stored in ``directory``."""
+    man = _manifest(directory)
+    oxides = tuple(man["oxides"])
+    params, infos, stoich = read_endmembers(directory / "endmembers.csv", oxides)
+    extra = {}
+    for name in man["files"]:
+        if name.endswith(".toml"):
+            extra[Path(name).stem] = tomllib.loads((directory / name).read_text(encoding="utf-8"))
+    return Dataset(
+        id=man["id"], title=man["title"], checksum=checksum(directory, list(man["files"])), oxides=oxides,
+        pressure_range_gpa=tuple(man["validity"]["pressure_gpa"]),
+        temperature_range_k=tuple(man["validity"]["temperature_k"]),
+        endmembers=params, info=infos, stoichiometry=stoich[:, : len(oxides)],
+        in_system=~np.any(stoich[:, len(oxides) :] > 0, axis=1), extra=extra,
+    )
+
+
+def available_datasets() -> list[str]:
+    """Ids of the datasets shipped under ``thermo/data``."""
+    return sorted(p.name for p in DATA_DIR.iterdir() if (p / "manifest.toml").is_file())
+
+
+@lru_cache(maxsize=8)
+def load_dataset(dataset_id: str = DEFAULT_DATASET_ID) -> Dataset:
+    """Load a shipped dataset by id (cached).
+
+    Raises
+    ------
+    InputError
+        If no dataset has that id.
+    """
+    if dataset_id not in available_datasets():
+        raise InputError("dataset", f"unknown dataset {dataset_id!r}; available: {', '.join(available_datasets())}")
+    return load_dataset_dir(DATA_DIR / dataset_id)

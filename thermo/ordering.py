@@ -1,0 +1,155 @@
+"""Order-disorder contributions to endmember Gibbs energies.
+
+Two models, both as used with the Holland & Powell (2011) dataset:
+
+* Landau tricritical model for displacive transitions (quartz α-β etc.),
+  Holland T.J.B. & Powell R. (1998) J. Metamorph. Geol. 16:309-343, Eqs. 8-11,
+  with the simplified pressure dependence Tc = Tc0 + Vmax·P/Smax.
+* Bragg-Williams convergent cation ordering (Al-Si in feldspars, Mg-Al in
+  spinel), Holland T.J.B. & Powell R. (1996) Am. Mineral. 81:1413-1424: one A
+  on a site of multiplicity 1 and n B on a site of multiplicity n when fully
+  ordered; enthalpy (ΔH + PΔV)(1-Q) + (W + PWv)Q(1-Q); configurational
+  entropy ``factor`` × ideal site mixing; G minimized over Q.
+
+All functions are vectorized: inputs broadcast against one another. Energies in
+J/mol, pressure in Pa, temperature in K, volumes in m³/mol.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.constants import R
+
+T_REF_K = 298.15
+
+
+@dataclass(frozen=True)
+class OrderingTerms:
+    """Additive contributions of an ordering model (same shape as the inputs)."""
+
+    g: np.ndarray
+    s: np.ndarray
+    v: np.ndarray
+    cp: np.ndarray
+    dv_dt: np.ndarray
+    dv_dp: np.ndarray
+
+
+def landau(pressure_pa, temperature_k, tc0_k, smax, vmax) -> OrderingTerms:
+    """Landau tricritical excess relative to the ordered phase at 298.15 K, 1 bar.
+
+    G_L = Smax[(T - Tc)Q² + Tc·Q⁶/3] + Smax·Tc0(Q0² - Q0⁶/3) - T·Smax·Q0² + P·Vmax·Q0²
+    with Q⁴ = 1 - T/Tc below Tc (0 above), Q0⁴ = 1 - 298.15/Tc0 and
+    Tc = Tc0 + Vmax·P/Smax (Holland & Powell 1998, J. Metamorph. Geol. 16:309,
+    Eqs. 8-11; pressure dependence of the volume term simplified).
+
+    Q is the equilibrium order parameter, so S = -∂G/∂T and V = ∂G/∂P follow
+    from the explicit dependence only (envelope theorem); the heat capacity
+    Cp = T·Smax/(2·Tc·sqrt(1 - T/Tc)) diverges at Tc as the model requires.
+    """
+    p, t = np.asarray(pressure_pa, float), np.asarray(temperature_k, float)
+    tc = tc0_k + vmax * p / smax
+    q0sq = np.sqrt(1.0 - T_REF_K / tc0_k)
+    ratio = np.clip(1.0 - t / tc, 0.0, None)
+    qsq = np.sqrt(ratio)
+    q6 = qsq**3
+    g = smax * ((t - tc) * qsq + tc * q6 / 3.0) + smax * tc0_k * (q0sq - q0sq**3 / 3.0) - t * smax * q0sq
+    g = g + p * vmax * q0sq
+    s = smax * (q0sq - qsq)
+    v = vmax * (q0sq - qsq + q6 / 3.0)
+    below = ratio > 0.0
+    safe = np.where(below, ratio, 1.0)
+    dqsq_dt = np.where(below, -0.5 / (tc * np.sqrt(safe)), 0.0)
+    dqsq_dtc = np.where(below, 0.5 * t / (tc**2 * np.sqrt(safe)), 0.0)
+    cp = -t * smax * dqsq_dt
+    dv_dt = vmax * (qsq**2 - 1.0) * dqsq_dt
+    dv_dp = vmax * (qsq**2 - 1.0) * dqsq_dtc * vmax / smax
+    return OrderingTerms(g, s, v, cp, dv_dt, dv_dp)
+
+
+def _site_fractions(q, n):
+    xa1 = (1.0 + n * q) / (1.0 + n)
+    xb1 = n * (1.0 - q) / (1.0 + n)
+    xa2 = (1.0 - q) / (1.0 + n)
+    xb2 = (n + q) / (1.0 + n)
+    return xa1, xb1, xa2, xb2
+
+
+def _xlogx(x):
+    return np.where(x > 0.0, x * np.log(np.where(x > 0.0, x, 1.0)), 0.0)
+
+
+def _bw_entropy(q, n, factor):
+    """Configurational entropy [J/(mol K)] and its first two Q-derivatives."""
+    xa1, xb1, xa2, xb2 = _site_fractions(q, n)
+    s = -R * factor * (_xlogx(xa1) + _xlogx(xb1) + n * (_xlogx(xa2) + _xlogx(xb2)))
+    k = n / (1.0 + n)
+    ds = -R * factor * k * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
+    d2s = -R * factor * k * (k / xa1 + k / xb1 + 1.0 / ((1.0 + n) * xa2) + 1.0 / ((1.0 + n) * xb2))
+    return s, ds, d2s
+
+
+def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
+    s, ds, d2s = _bw_entropy(q, n, factor)
+    eh, ew = dh + p * dv, w + p * wv
+    g = eh * (1.0 - q) + ew * q * (1.0 - q) - t * s
+    gq = -eh + ew * (1.0 - 2.0 * q) - t * ds
+    gqq = -2.0 * ew - t * d2s
+    return g, gq, gqq, s, ds
+
+
+_Q_GRID = np.concatenate([np.linspace(0.0, 0.995, 200), 1.0 - np.logspace(-2.5, -13, 40)])
+
+
+def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 60):
+    """Order parameter Q in [0, 1) minimizing the Bragg-Williams G (vectorized).
+
+    A grid over Q finds the global minimum's bracket; bisection on ∂G/∂Q
+    refines it to round-off (``iterations`` halvings of a bracket < 0.005).
+    """
+    p, t, *args = np.broadcast_arrays(
+        np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
+    )
+    grid = _Q_GRID.reshape((-1,) + (1,) * p.ndim)
+    g, *_ = _bw_g(grid, p, t, *args)
+    idx = np.argmin(g, axis=0)
+    lo = _Q_GRID[np.clip(idx - 1, 0, None)]
+    hi = _Q_GRID[np.clip(idx + 1, None, _Q_GRID.size - 1)]
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        _, gq, *_ = _bw_g(mid, p, t, *args)
+        lo = np.where(gq < 0.0, mid, lo)
+        hi = np.where(gq < 0.0, hi, mid)
+    return 0.5 * (lo + hi)
+
+
+def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):
+    q = equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
+    g, _, gqq, s, ds = _bw_g(q, pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
+    return q, g, gqq, s, ds
+
+
+def bragg_williams(pressure_pa, temperature_k, dh, dv, w, wv, n, factor) -> OrderingTerms:
+    """Bragg-Williams ordering contribution, relative to its value at 298.15 K, 1 bar.
+
+    The reference enthalpy and entropy at 298.15 K and 1 bar are subtracted so
+    the tabulated H0 and S0 keep their meaning (phase fully equilibrated at
+    298.15 K). Derivatives: S = S_conf(Q) and V = ΔV(1-Q) + Wv·Q(1-Q) by the
+    envelope theorem; Cp = T·(∂S/∂Q)²/(∂²G/∂Q²) from dQ/dT = S_conf'/G_QQ
+    (Holland & Powell 1996, Am. Mineral. 81:1413).
+    """
+    p, t = np.asarray(pressure_pa, float), np.asarray(temperature_k, float)
+    q, g, gqq, s, ds = _bw_state(p, t, dh, dv, w, wv, n, factor)
+    _, g0, _, s0, _ = _bw_state(0.0, T_REF_K, dh, dv, w, wv, n, factor)
+    h0 = g0 + T_REF_K * s0
+    g = g - (h0 - t * s0)
+    s = s - s0
+    v = dv * (1.0 - q) + wv * q * (1.0 - q)
+    dq_dt = ds / gqq
+    gqp = -dv + wv * (1.0 - 2.0 * q)
+    dq_dp = -gqp / gqq
+    cp = t * ds * dq_dt
+    dv_dq = -dv + wv * (1.0 - 2.0 * q)
+    return OrderingTerms(g, s, v, cp, dv_dq * dq_dt, dv_dq * dq_dp)
