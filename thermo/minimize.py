@@ -1,0 +1,471 @@
+"""Gibbs energy minimization at fixed pressure, temperature and bulk composition.
+
+Method (a published route, see References):
+
+1. **Linear programme over candidate columns.** Every pure phase and a set of
+   discrete compositions of every solution become columns (composition in
+   oxide moles, molar G). Minimizing Σ G_k λ_k subject to Σ a_k λ_k = b,
+   λ ≥ 0 (HiGHS via :func:`scipy.optimize.linprog`) gives the best assemblage
+   of those columns; the equality-constraint duals are the chemical potentials
+   μ of the oxide components (White, Johnson & Dantzig 1958, J. Chem. Phys.
+   28:751; Dantzig & Wolfe 1960, Oper. Res. 8:101).
+2. **Column generation.** For each solution, the driving force
+   D(p) = G(p) - a(p)·μ is minimized over its composition simplex by a batched
+   Newton method from several starts; compositions with D < 0 are added as new
+   columns, until no solution has a negative driving force.
+3. **Newton polish.** Columns of one solution close in composition are merged
+   into one phase (distinct ones kept: miscibility gaps), and the equilibrium
+   conditions μ_i(phase) = a_i·μ with mass balance are solved by Newton's
+   method to round-off. A final check minimizes every solution's driving force
+   at the polished μ; any negative value sends the solver back to step 1.
+
+Derivatives of chemical potentials are exact complex-step derivatives
+(Squire & Trapp 1998, SIAM Rev. 40:110).
+
+Warm start: the phases of a previous result are tried first (polish + check);
+if they pass, no linear programme is needed.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import linprog
+
+from thermo import solutions as sol
+from thermo.endmembers import StandardState, standard_state
+from thermo.errors import CompositionError, ConvergenceError
+from thermo.phases import PhaseSystem, SolutionPhase
+
+
+@dataclass(frozen=True)
+class SolverOptions:
+    """Tolerances and limits of :func:`equilibrate` (energies in J per mole of formula units)."""
+
+    driving_force_tol: float = 1.0  # column generation stops (and polish starts) when no D < -tol
+    check_tol: float = 1e-3  # final minimality check: no D below -check_tol
+    max_outer: int = 40
+    newton_iter: int = 40
+    polish_iter: int = 50
+    merge_distance: float = 0.02  # in oxide mole fractions
+    starts: int = 3
+    mass_tol: float = 1e-12
+
+
+@dataclass
+class PhaseState:
+    """One phase of an equilibrium assemblage."""
+
+    name: str  # solution or endmember name; instances of one solution get '#2', ...
+    model: str  # solution name or pure endmember name
+    solution_index: int  # -1 for pure phases
+    amount_mol: np.ndarray  # moles of each endmember formula unit (pure: length 1)
+
+
+@dataclass
+class Equilibrium:
+    """Raw result of :func:`equilibrate` (see :mod:`thermo.assemblage` for properties)."""
+
+    system: PhaseSystem
+    pressure_pa: float
+    temperature_k: float
+    bulk_mol: np.ndarray
+    phases: list[PhaseState]
+    mu: np.ndarray  # chemical potentials of the active components [J/mol]
+    standard: StandardState
+    diagnostics: dict = field(default_factory=dict)
+
+
+# ------------------------------------------------------------ solution helpers
+def _mu(phase: SolutionPhase, n, g0, t, p):
+    return sol.chemical_potentials(phase.model, n, g0, t, p)
+
+
+def _mu_jacobian(phase: SolutionPhase, n, g0, t, p):
+    """μ and ∂μ_i/∂n_j for a batch of amounts n (K, m) by complex step."""
+    k, m = n.shape
+    h = 1e-30 * np.maximum(np.abs(n).sum(axis=1), 1e-300)
+    pert = np.repeat(n[:, None, :].astype(complex), m, axis=1)
+    pert[:, np.arange(m), np.arange(m)] += 1j * h[:, None]
+    mu_c = _mu(phase, pert.reshape(k * m, m), g0, t, p).reshape(k, m, m)
+    jac = np.imag(mu_c) / h[:, None, None]  # [k, j, i] = dμ_i/dn_j
+    return np.real(mu_c[:, 0, :]), np.swapaxes(jac, 1, 2)
+
+
+def _driving_force(phase, x, g0, t, p, mu_c):
+    mu = _mu(phase, x, g0, t, p)
+    return np.sum(x * (mu - phase.stoich @ mu_c), axis=-1) / np.sum(x, axis=-1)
+
+
+def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters):
+    """Batched Newton minimization of D(x) on the simplex from ``starts`` (K, m)."""
+    x = starts / starts.sum(axis=1, keepdims=True)
+    k, m = x.shape
+    evals = 0
+    if m == 1:
+        return x, _driving_force(phase, x, g0, t, p, mu_c), 1
+    target = phase.stoich @ mu_c
+    d_val = _driving_force(phase, x, g0, t, p, mu_c)
+    for _ in range(iters):
+        mu, jac = _mu_jacobian(phase, x, g0, t, p)
+        evals += k * (m + 1)
+        g = mu - target
+        kkt = np.zeros((k, m + 1, m + 1))
+        kkt[:, :m, :m] = jac
+        kkt[:, :m, m] = 1.0
+        kkt[:, m, :m] = 1.0
+        rhs = np.concatenate([-g, np.zeros((k, 1))], axis=1)
+        try:
+            step = np.linalg.solve(kkt, rhs[..., None])[..., 0][:, :m]
+        except np.linalg.LinAlgError:
+            step = np.full((k, m), np.nan)
+        pg = g - g.mean(axis=1, keepdims=True)
+        bad = ~np.all(np.isfinite(step), axis=1) | (np.sum(step * g, axis=1) >= 0)
+        step[bad] = -pg[bad] / (np.abs(pg[bad]).max(axis=1, keepdims=True) + 1e-300) * 0.1
+        neg = step < 0
+        ratio = np.where(neg, -0.9 * x / np.where(neg, step, -1.0), np.inf)
+        alpha = np.minimum(1.0, ratio.min(axis=1))
+        for _ls in range(20):
+            trial = x + alpha[:, None] * step
+            trial = np.clip(trial, 1e-300, None)
+            trial /= trial.sum(axis=1, keepdims=True)
+            d_new = _driving_force(phase, trial, g0, t, p, mu_c)
+            evals += k
+            ok = d_new <= d_val + 1e-12 * np.abs(d_val) + 1e-9
+            if ok.all():
+                break
+            alpha = np.where(ok, alpha, 0.5 * alpha)
+        ok = d_new <= d_val + 1e-12 * np.abs(d_val) + 1e-9
+        x = np.where(ok[:, None], trial, x)
+        d_val = np.where(ok, d_new, d_val)
+        if np.max(np.abs(pg * x)) < 1e-9:
+            break
+    return x, d_val, evals
+
+
+def _simplex_points(m: int, count: int = 60) -> np.ndarray:
+    """Deterministic spread of compositions on an m-simplex (vertices inset, lattice or quasi-random)."""
+    eps = 1e-4
+    pts = [np.full(m, eps) + (1.0 - m * eps) * np.eye(m)[i] for i in range(m)]
+    pts.append(np.full(m, 1.0 / m))
+    if m == 2:
+        pts += [np.array([f, 1.0 - f]) for f in np.linspace(0.05, 0.95, 19)]
+    else:
+        rng = np.random.default_rng(12345 + m)
+        pts += list(rng.dirichlet(np.full(m, 0.7), size=count))
+    return np.array(pts)
+
+
+# ------------------------------------------------------------------ LP stage
+@dataclass
+class _Columns:
+    comp: list  # oxide composition per column (c,)
+    g: list
+    owner: list  # (-1, pure index) or (solution index, endmember fractions)
+
+    def add(self, comp, g, owner):
+        self.comp.append(np.asarray(comp, float))
+        self.g.append(float(g))
+        self.owner.append(owner)
+
+
+def _solve_lp(cols: _Columns, bulk, mu_ref):
+    a = np.array(cols.comp).T
+    g = np.array(cols.g) - mu_ref @ a
+    scale = max(1.0, float(np.abs(g).max()))
+    res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method="highs")
+    if res.status == 2:
+        raise CompositionError(
+            "composition.oxides",
+            "the bulk composition cannot be made from the candidate phases (outside the phases' chemical system)",
+        )
+    if res.status != 0:
+        raise ConvergenceError(f"linear programme failed: {res.message}", {"lp_status": res.status})
+    mu = mu_ref + scale * np.asarray(res.eqlin.marginals)
+    return res.x, mu
+
+
+class _Solver:
+    def __init__(self, system: PhaseSystem, p, t, bulk, options: SolverOptions):
+        self.s, self.p, self.t, self.opt = system, p, t, options
+        self.bulk = np.asarray(bulk, float)
+        self.std = standard_state(system.params, p, t)
+        self.g0 = self.std.g_j_per_mol
+        self.evals = 0
+        self.pool = [_simplex_points(ph.model.size) for ph in system.solutions]
+
+    def g0_of(self, phase: SolutionPhase):
+        return self.g0[phase.endmember_index]
+
+    def solution_column(self, si, x):
+        ph = self.s.solutions[si]
+        x = x / x.sum()
+        g = float(sol.molar_gibbs(ph.model, x[None], self.g0_of(ph), self.t, self.p)[0])
+        return x @ ph.stoich, g
+
+    def initial_columns(self, warm_phases):
+        cols = _Columns([], [], [])
+        for k in range(self.s.n_pure):
+            cols.add(self.s.pure_stoich[k], self.g0[k], (-1, k))
+        for si, ph in enumerate(self.s.solutions):
+            pts = self.pool[si]
+            gs = sol.molar_gibbs(ph.model, pts, self.g0_of(ph), self.t, self.p)
+            self.evals += len(pts)
+            for x, g in zip(pts, gs, strict=True):
+                cols.add(x @ ph.stoich, g, (si, x))
+        for wp in warm_phases or []:
+            if wp.solution_index >= 0:
+                comp, g = self.solution_column(wp.solution_index, wp.amount_mol)
+                cols.add(comp, g, (wp.solution_index, wp.amount_mol / wp.amount_mol.sum()))
+        return cols
+
+    def best_driving_forces(self, mu, extra_starts=None):
+        """Minimize every solution's driving force; returns list of (x (K,m), D (K,))."""
+        out = []
+        for si, ph in enumerate(self.s.solutions):
+            pool = self.pool[si]
+            d = _driving_force(ph, pool, self.g0_of(ph), self.t, self.p, mu)
+            self.evals += len(pool)
+            order = np.argsort(d)[: self.opt.starts]
+            starts = pool[order]
+            if extra_starts and si in extra_starts:
+                starts = np.vstack([starts, extra_starts[si]])
+            x, dv, ev = _minimize_driving_force(ph, starts, self.g0_of(ph), self.t, self.p, mu, self.opt.newton_iter)
+            self.evals += ev
+            out.append((x, dv))
+        return out
+
+
+def _oxide_fraction(comp):
+    return comp / comp.sum()
+
+
+def _phases_from_lp(solver: _Solver, cols: _Columns, lam) -> list[PhaseState]:
+    """Merge active LP columns into phases (one per distinct composition of a solution)."""
+    active = np.flatnonzero(lam > 1e-12 * max(1.0, lam.max()))
+    groups: list[list[int]] = []
+    for k in active:
+        owner = cols.owner[k]
+        for grp in groups:
+            o2 = cols.owner[grp[0]]
+            if owner[0] == -1 or o2[0] != owner[0]:
+                continue
+            dist = np.abs(_oxide_fraction(cols.comp[k]) - _oxide_fraction(cols.comp[grp[0]])).max()
+            if dist < solver.opt.merge_distance:
+                grp.append(k)
+                break
+        else:
+            groups.append([k])
+    phases = []
+    for grp in groups:
+        owner = cols.owner[grp[0]]
+        if owner[0] == -1:
+            k = owner[1]
+            amt = np.array([lam[grp].sum()])
+            phases.append(PhaseState(solver.s.pure_names[k], solver.s.pure_names[k], -1, amt))
+        else:
+            n = sum(lam[k] * cols.owner[k][1] for k in grp)
+            name = solver.s.solutions[owner[0]].name
+            phases.append(PhaseState(name, name, owner[0], np.asarray(n, float)))
+    return _name_instances(phases)
+
+
+def _name_instances(phases):
+    seen: dict[str, int] = {}
+    for ph in phases:
+        seen[ph.model] = seen.get(ph.model, 0) + 1
+        ph.name = ph.model if seen[ph.model] == 1 else f"{ph.model}#{seen[ph.model]}"
+    return phases
+
+
+# --------------------------------------------------------------- polish stage
+def _polish(solver: _Solver, phases: list[PhaseState], mu0):
+    """Newton solution of μ_i(phase) = a_i·μ and mass balance. Returns (phases, μ) or None."""
+    s, c = solver.s, len(solver.bulk)
+    sizes = [len(ph.amount_mol) for ph in phases]
+    offs = np.concatenate([[0], np.cumsum(sizes)])
+    nv = offs[-1]
+    z = np.concatenate([np.concatenate([ph.amount_mol for ph in phases]), mu0])
+    scale_b = np.abs(solver.bulk).max()
+    for _ in range(solver.opt.polish_iter):
+        r = np.zeros(nv + c)
+        jac = np.zeros((nv + c, nv + c))
+        mu = z[nv:]
+        mass = -solver.bulk.copy()
+        for j, ph in enumerate(phases):
+            sl = slice(offs[j], offs[j + 1])
+            n = z[sl]
+            if ph.solution_index < 0:
+                k = s.pure_names.index(ph.model)
+                a = s.pure_stoich[k][None]
+                r[sl] = solver.g0[k] - a @ mu
+            else:
+                sp = s.solutions[ph.solution_index]
+                a = sp.stoich
+                muj, hj = _mu_jacobian(sp, n[None], solver.g0_of(sp), solver.t, solver.p)
+                solver.evals += len(n) + 1
+                r[sl] = muj[0] - a @ mu
+                jac[sl, sl] = hj[0]
+            jac[sl, nv:] = -a
+            jac[nv:, sl] = a.T
+            mass += a.T @ n
+        r[nv:] = mass
+        rmu = np.abs(r[:nv]).max() if nv else 0.0
+        if rmu < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
+            out = []
+            for j, ph in enumerate(phases):
+                out.append(PhaseState(ph.name, ph.model, ph.solution_index, z[offs[j]: offs[j + 1]].copy()))
+            return out, z[nv:].copy()
+        try:
+            dz = np.linalg.solve(jac, -r)
+        except np.linalg.LinAlgError:
+            return None
+        amounts, dam = z[:nv], dz[:nv]
+        neg = dam < 0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(neg, -amounts / dam, np.inf)
+        alpha = min(1.0, 0.95 * ratio.min()) if nv else 1.0
+        if alpha < 1e-3:
+            return None
+        z = z + alpha * dz
+    return None
+
+
+# ------------------------------------------------------------------ driver
+def _check(solver: _Solver, phases, mu):
+    """Smallest driving force of every solution (including second instances) and pure phase."""
+    extra = {}
+    for ph in phases:
+        if ph.solution_index >= 0:
+            extra.setdefault(ph.solution_index, []).append(ph.amount_mol / ph.amount_mol.sum())
+    extra = {k: np.array(v) for k, v in extra.items()}
+    found = solver.best_driving_forces(mu, extra)
+    pure_d = solver.g0[: solver.s.n_pure] - solver.s.pure_stoich @ mu
+    return found, pure_d
+
+
+def _absent_min(solver, phases, found, pure_d):
+    present_pure = {ph.model for ph in phases if ph.solution_index < 0}
+    vals = [d for k, d in enumerate(pure_d) if solver.s.pure_names[k] not in present_pure]
+    present_sol = {ph.solution_index for ph in phases if ph.solution_index >= 0}
+    for si, (_, dv) in enumerate(found):
+        if si not in present_sol:
+            vals.append(float(dv.min()))
+    return float(min(vals)) if vals else 0.0
+
+
+def equilibrate(
+    system: PhaseSystem,
+    pressure_pa: float,
+    temperature_k: float,
+    bulk_mol,
+    warm: Equilibrium | None = None,
+    options: SolverOptions | None = None,
+) -> Equilibrium:
+    """Stable assemblage of minimum Gibbs energy at fixed P, T and bulk composition.
+
+    Parameters
+    ----------
+    system : PhaseSystem
+        Candidate phases over the active components (see :func:`thermo.phases.build_system`).
+    pressure_pa, temperature_k : float
+        Pressure [Pa] and temperature [K].
+    bulk_mol : array_like, shape (c,)
+        Moles of each active component.
+    warm : Equilibrium, optional
+        A previous result whose phases are tried first.
+    options : SolverOptions, optional
+
+    Raises
+    ------
+    CompositionError
+        If the bulk cannot be made from the candidate phases.
+    ConvergenceError
+        If the solver does not reach a verified minimum (diagnostics attached).
+    """
+    opt = options or SolverOptions()
+    t0 = time.perf_counter()
+    solver = _Solver(system, float(pressure_pa), float(temperature_k), bulk_mol, opt)
+    diag = {"outer_iterations": 0, "warm_start_used": False}
+    if warm is not None and warm.system is system:
+        result = _try_warm(solver, warm)
+        if result is not None:
+            phases, mu, found, pure_d = result
+            diag["warm_start_used"] = True
+            return _finish(solver, phases, mu, found, pure_d, diag, t0)
+    cols = solver.initial_columns(warm.phases if warm is not None and warm.system is system else None)
+    mu = np.linalg.lstsq(np.array(cols.comp), np.array(cols.g), rcond=None)[0]
+    for outer in range(opt.max_outer):
+        diag["outer_iterations"] = outer + 1
+        lam, mu = _solve_lp(cols, solver.bulk, mu)
+        found = solver.best_driving_forces(mu)
+        added = 0
+        for si, (x, dv) in enumerate(found):
+            for xi, di in zip(x, dv, strict=True):
+                if di < -opt.driving_force_tol:
+                    added += _add_column(solver, cols, si, xi)
+        if added:
+            continue
+        phases = _phases_from_lp(solver, cols, lam)
+        polished = _polish(solver, phases, mu)
+        if polished is None:
+            diag.setdefault("polish_failures", 0)
+            diag["polish_failures"] += 1
+            if diag["polish_failures"] > 3:
+                break
+            opt_merge = SolverOptions(**{**opt.__dict__, "merge_distance": opt.merge_distance * 0.25})
+            solver.opt = opt_merge
+            continue
+        phases, mu = polished
+        found, pure_d = _check(solver, phases, mu)
+        worst = _absent_min(solver, phases, found, pure_d)
+        bad_in_present = min((float(dv.min()) for dv in (f[1] for f in found)), default=0.0)
+        if min(worst, bad_in_present) >= -opt.check_tol:
+            return _finish(solver, phases, mu, found, pure_d, diag, t0)
+        for si, (x, dv) in enumerate(found):
+            for xi, di in zip(x, dv, strict=True):
+                if di < -opt.check_tol:
+                    _add_column(solver, cols, si, xi)
+    diag.update(g_evaluations=solver.evals, wall_time_s=time.perf_counter() - t0)
+    raise ConvergenceError(
+        f"no verified minimum at P = {pressure_pa / 1e9:.4g} GPa, T = {temperature_k:.2f} K "
+        f"after {diag['outer_iterations']} iterations",
+        diag,
+    )
+
+
+def _add_column(solver: _Solver, cols: _Columns, si: int, x) -> int:
+    comp, g = solver.solution_column(si, x)
+    cols.add(comp, g, (si, x / x.sum()))
+    solver.pool[si] = np.vstack([solver.pool[si], x[None] / x.sum()])
+    return 1
+
+
+def _try_warm(solver: _Solver, warm: Equilibrium):
+    polished = _polish(solver, [PhaseState(p.name, p.model, p.solution_index, p.amount_mol.copy())
+                                for p in warm.phases], warm.mu)
+    if polished is None:
+        return None
+    phases, mu = polished
+    found, pure_d = _check(solver, phases, mu)
+    worst = _absent_min(solver, phases, found, pure_d)
+    bad_in_present = min((float(dv.min()) for dv in (f[1] for f in found)), default=0.0)
+    if min(worst, bad_in_present) < -solver.opt.check_tol:
+        return None
+    return phases, mu, found, pure_d
+
+
+def _finish(solver, phases, mu, found, pure_d, diag, t0):
+    mass = sum(
+        (solver.s.pure_stoich[solver.s.pure_names.index(ph.model)] * ph.amount_mol[0] if ph.solution_index < 0
+         else solver.s.solutions[ph.solution_index].stoich.T @ ph.amount_mol) for ph in phases
+    ) - solver.bulk
+    diag.update(
+        g_evaluations=solver.evals,
+        largest_absent_driving_force_j_per_mol=_absent_min(solver, phases, found, pure_d),
+        mass_balance_residual=float(np.abs(mass).max() / np.abs(solver.bulk).max()),
+        wall_time_s=time.perf_counter() - t0,
+    )
+    return Equilibrium(solver.s, solver.p, solver.t, solver.bulk, _name_instances(phases), mu, solver.std, diag)
