@@ -99,49 +99,78 @@ def _driving_force(phase, x, g0, t, p, mu_c):
     return np.sum(x * (mu - phase.stoich @ mu_c), axis=-1) / np.sum(x, axis=-1)
 
 
-def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters):
-    """Batched Newton minimization of D(x) on the simplex from ``starts`` (K, m)."""
-    x = starts / starts.sum(axis=1, keepdims=True)
-    k, m = x.shape
-    evals = 0
-    if m == 1:
-        return x, _driving_force(phase, x, g0, t, p, mu_c), 1
-    target = phase.stoich @ mu_c
-    d_val = _driving_force(phase, x, g0, t, p, mu_c)
-    for _ in range(iters):
-        mu, jac = _mu_jacobian(phase, x, g0, t, p)
-        evals += k * (m + 1)
-        g = mu - target
-        kkt = np.zeros((k, m + 1, m + 1))
-        kkt[:, :m, :m] = jac
-        kkt[:, :m, m] = 1.0
-        kkt[:, m, :m] = 1.0
-        rhs = np.concatenate([-g, np.zeros((k, 1))], axis=1)
+def _newton_direction(jac, g):
+    """Newton step on the simplex tangent space (KKT system with Σ dx = 0), batched."""
+    k, m = g.shape
+    kkt = np.zeros((k, m + 1, m + 1))
+    kkt[:, :m, :m] = jac
+    kkt[:, :m, m] = 1.0
+    kkt[:, m, :m] = 1.0
+    rhs = np.concatenate([-g, np.zeros((k, 1))], axis=1)
+    with np.errstate(all="ignore"):
         try:
             step = np.linalg.solve(kkt, rhs[..., None])[..., 0][:, :m]
         except np.linalg.LinAlgError:
             step = np.full((k, m), np.nan)
-        pg = g - g.mean(axis=1, keepdims=True)
-        bad = ~np.all(np.isfinite(step), axis=1) | (np.sum(step * g, axis=1) >= 0)
-        step[bad] = -pg[bad] / (np.abs(pg[bad]).max(axis=1, keepdims=True) + 1e-300) * 0.1
-        neg = step < 0
-        ratio = np.where(neg, -0.9 * x / np.where(neg, step, -1.0), np.inf)
-        alpha = np.minimum(1.0, ratio.min(axis=1))
-        for _ls in range(20):
-            trial = x + alpha[:, None] * step
-            trial = np.clip(trial, 1e-300, None)
-            trial /= trial.sum(axis=1, keepdims=True)
-            d_new = _driving_force(phase, trial, g0, t, p, mu_c)
-            evals += k
-            ok = d_new <= d_val + 1e-12 * np.abs(d_val) + 1e-9
-            if ok.all():
-                break
-            alpha = np.where(ok, alpha, 0.5 * alpha)
-        ok = d_new <= d_val + 1e-12 * np.abs(d_val) + 1e-9
-        x = np.where(ok[:, None], trial, x)
-        d_val = np.where(ok, d_new, d_val)
-        if np.max(np.abs(pg * x)) < 1e-9:
+    pg = g - g.mean(axis=1, keepdims=True)
+    bad = ~np.all(np.isfinite(step), axis=1) | (np.sum(step * g, axis=1) >= 0)
+    step[bad] = -pg[bad] / (np.abs(pg[bad]).max(axis=1, keepdims=True) + 1e-300) * 0.1
+    return step, pg
+
+
+def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6):
+    """Batched Newton minimization of D(x) on the simplex from ``starts`` (K, m).
+
+    Rows converge independently (projected gradient times x below ``gtol`` J/mol)
+    and are then frozen. Returns compositions, driving forces and G evaluations.
+    """
+    x = starts / starts.sum(axis=1, keepdims=True)
+    m = x.shape[1]
+    d_val = _driving_force(phase, x, g0, t, p, mu_c)
+    evals = len(x)
+    if m == 1:
+        return x, d_val, evals
+    target = phase.stoich @ mu_c
+    live = np.ones(len(x), bool)
+    for _ in range(iters):
+        idx = np.flatnonzero(live)
+        if idx.size == 0:
             break
+        xs = x[idx]
+        mu, jac = _mu_jacobian(phase, xs, g0, t, p)
+        evals += len(idx) * (m + 1)
+        step, pg = _newton_direction(jac, mu - target)
+        done = np.max(np.abs(pg * xs), axis=1) < gtol
+        live[idx[done]] = False
+        neg = step < 0
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(neg, -0.9 * xs / np.where(neg, step, -1.0), np.inf)
+        alpha = np.minimum(1.0, ratio.min(axis=1))
+        d_old = d_val[idx]
+        # rows whose quadratic model cannot bring D below zero and that are already positive stop early
+        predicted = d_old + 0.5 * np.sum((mu - target) * step, axis=1)
+        hopeless = (d_old > 1.0) & (predicted > 0.5 * d_old)
+        live[idx[hopeless]] = False
+        pending = ~done & ~hopeless
+        trial = xs.copy()
+        d_new = d_old.copy()
+        for _ls in range(10):
+            if not pending.any():
+                break
+            tr = np.clip(xs[pending] + alpha[pending, None] * step[pending], 1e-300, None)
+            tr /= tr.sum(axis=1, keepdims=True)
+            dn = _driving_force(phase, tr, g0, t, p, mu_c)
+            evals += int(pending.sum())
+            ok = dn <= d_old[pending] + 1e-13 * np.abs(d_old[pending])
+            rows = np.flatnonzero(pending)
+            trial[rows[ok]] = tr[ok]
+            d_new[rows[ok]] = dn[ok]
+            alpha[rows[~ok]] *= 0.5
+            pending[rows[ok]] = False
+        stalled = pending  # no decrease found: converged to round-off
+        live[idx[stalled]] = False
+        x[idx] = trial
+        d_val[idx] = d_new
     return x, d_val, evals
 
 
