@@ -45,11 +45,12 @@ class SolverOptions:
     """Tolerances and limits of :func:`equilibrate` (energies in J per mole of formula units)."""
 
     driving_force_tol: float = 1.0  # column generation stops (and polish starts) when no D < -tol
+    colgen_newton_iter: int = 8  # Newton iterations per start while generating columns
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
     max_outer: int = 40
     newton_iter: int = 40
     polish_iter: int = 50
-    merge_distance: float = 0.02  # in oxide mole fractions
+    merge_distance: float = 0.1  # columns of one solution closer than this (oxide mole fractions) are one phase
     starts: int = 3
     mass_tol: float = 1e-12
 
@@ -250,7 +251,7 @@ class _Solver:
                 cols.add(comp, g, (wp.solution_index, wp.amount_mol / wp.amount_mol.sum()))
         return cols
 
-    def best_driving_forces(self, mu, extra_starts=None):
+    def best_driving_forces(self, mu, extra_starts=None, iters=None):
         """Minimize every solution's driving force; returns list of (x (K,m), D (K,))."""
         out = []
         for si, ph in enumerate(self.s.solutions):
@@ -261,7 +262,9 @@ class _Solver:
             starts = pool[order]
             if extra_starts and si in extra_starts:
                 starts = np.vstack([starts, extra_starts[si]])
-            x, dv, ev = _minimize_driving_force(ph, starts, self.g0_of(ph), self.t, self.p, mu, self.opt.newton_iter)
+            x, dv, ev = _minimize_driving_force(
+                ph, starts, self.g0_of(ph), self.t, self.p, mu, iters or self.opt.newton_iter
+            )
             self.evals += ev
             out.append((x, dv))
         return out
@@ -271,7 +274,7 @@ def _oxide_fraction(comp):
     return comp / comp.sum()
 
 
-def _phases_from_lp(solver: _Solver, cols: _Columns, lam) -> list[PhaseState]:
+def _phases_from_lp(solver: _Solver, cols: _Columns, lam, merge_distance: float) -> list[PhaseState]:
     """Merge active LP columns into phases (one per distinct composition of a solution)."""
     active = np.flatnonzero(lam > 1e-12 * max(1.0, lam.max()))
     groups: list[list[int]] = []
@@ -282,7 +285,7 @@ def _phases_from_lp(solver: _Solver, cols: _Columns, lam) -> list[PhaseState]:
             if owner[0] == -1 or o2[0] != owner[0]:
                 continue
             dist = np.abs(_oxide_fraction(cols.comp[k]) - _oxide_fraction(cols.comp[grp[0]])).max()
-            if dist < solver.opt.merge_distance:
+            if dist < merge_distance:
                 grp.append(k)
                 break
         else:
@@ -426,37 +429,41 @@ def equilibrate(
             return _finish(solver, phases, mu, found, pure_d, diag, t0)
     cols = solver.initial_columns(warm.phases if warm is not None and warm.system is system else None)
     mu = np.linalg.lstsq(np.array(cols.comp), np.array(cols.g), rcond=None)[0]
+    previous_set = None
     for outer in range(opt.max_outer):
         diag["outer_iterations"] = outer + 1
         lam, mu = _solve_lp(cols, solver.bulk, mu)
-        found = solver.best_driving_forces(mu)
+        found = solver.best_driving_forces(mu, iters=opt.colgen_newton_iter)
         added = 0
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
                 if di < -opt.driving_force_tol:
                     added += _add_column(solver, cols, si, xi)
-        if added:
+        phases = _phases_from_lp(solver, cols, lam, opt.merge_distance)
+        current_set = sorted(ph.name for ph in phases)
+        stable = current_set == previous_set
+        previous_set = current_set
+        if added and not stable:
             continue
-        phases = _phases_from_lp(solver, cols, lam)
         polished = _polish(solver, phases, mu)
         if polished is None:
-            diag.setdefault("polish_failures", 0)
-            diag["polish_failures"] += 1
-            if diag["polish_failures"] > 3:
-                break
-            opt_merge = SolverOptions(**{**opt.__dict__, "merge_distance": opt.merge_distance * 0.25})
-            solver.opt = opt_merge
+            polished = _polish(solver, _phases_from_lp(solver, cols, lam, np.inf), mu)
+        if polished is None:
+            diag["polish_failures"] = diag.get("polish_failures", 0) + 1
             continue
-        phases, mu = polished
-        found, pure_d = _check(solver, phases, mu)
+        phases, mu_p = polished
+        found, pure_d = _check(solver, phases, mu_p)
         worst = _absent_min(solver, phases, found, pure_d)
         bad_in_present = min((float(dv.min()) for dv in (f[1] for f in found)), default=0.0)
         if min(worst, bad_in_present) >= -opt.check_tol:
-            return _finish(solver, phases, mu, found, pure_d, diag, t0)
+            return _finish(solver, phases, mu_p, found, pure_d, diag, t0)
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
                 if di < -opt.check_tol:
                     _add_column(solver, cols, si, xi)
+        for ph in phases:
+            if ph.solution_index >= 0:
+                _add_column(solver, cols, ph.solution_index, ph.amount_mol)
     diag.update(g_evaluations=solver.evals, wall_time_s=time.perf_counter() - t0)
     raise ConvergenceError(
         f"no verified minimum at P = {pressure_pa / 1e9:.4g} GPa, T = {temperature_k:.2f} K "
