@@ -49,7 +49,7 @@ class SolverOptions:
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
     max_outer: int = 40
     newton_iter: int = 40
-    polish_iter: int = 50
+    polish_iter: int = 80
     merge_distance: float = 0.1  # columns of one solution closer than this (oxide mole fractions) are one phase
     starts: int = 3
     mass_tol: float = 1e-12
@@ -313,54 +313,77 @@ def _name_instances(phases):
 
 
 # --------------------------------------------------------------- polish stage
-def _polish(solver: _Solver, phases: list[PhaseState], mu0):
-    """Newton solution of μ_i(phase) = a_i·μ and mass balance. Returns (phases, μ) or None."""
-    s, c = solver.s, len(solver.bulk)
+def _polish_system(solver: _Solver, phases: list[PhaseState], z):
+    """Residuals and Jacobian of the equilibrium conditions for unknowns z = (amounts, μ_reduced)."""
+    s, basis = solver.s, solver.s.basis
+    c = basis.shape[1]
     sizes = [len(ph.amount_mol) for ph in phases]
-    offs = np.concatenate([[0], np.cumsum(sizes)])
+    offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
     nv = offs[-1]
-    z = np.concatenate([np.concatenate([ph.amount_mol for ph in phases]), mu0])
+    r = np.zeros(nv + c)
+    jac = np.zeros((nv + c, nv + c))
+    mu = basis @ z[nv:]
+    mass = -solver.bulk.copy()
+    for j, ph in enumerate(phases):
+        sl = slice(offs[j], offs[j + 1])
+        n = z[sl]
+        if ph.solution_index < 0:
+            k = s.pure_names.index(ph.model)
+            a = s.pure_stoich[k][None]
+            r[sl] = solver.g0[k] - a @ mu
+        else:
+            sp = s.solutions[ph.solution_index]
+            a = sp.stoich
+            muj, hj = _mu_jacobian(sp, n[None], solver.g0_of(sp), solver.t, solver.p)
+            solver.evals += len(n) + 1
+            r[sl] = muj[0] - a @ mu
+            jac[sl, sl] = hj[0]
+        jac[sl, nv:] = -a @ basis
+        jac[nv:, sl] = (a @ basis).T
+        mass += a.T @ n
+    r[nv:] = basis.T @ mass
+    return r, jac, offs, mass
+
+
+def _polish(solver: _Solver, phases: list[PhaseState], mu0):
+    """Newton solution of μ_i(phase) = a_i·μ and mass balance, to round-off.
+
+    Phases whose amount the Newton step drives below zero are removed (the
+    minimality check adds back any phase that should be present). Returns
+    (phases, μ) or None if the iteration does not converge.
+    """
+    basis = solver.s.basis
+    phases = [PhaseState(p.name, p.model, p.solution_index, np.asarray(p.amount_mol, float).copy()) for p in phases]
+    z = np.concatenate([np.concatenate([ph.amount_mol for ph in phases]), basis.T @ mu0])
     scale_b = np.abs(solver.bulk).max()
     for _ in range(solver.opt.polish_iter):
-        r = np.zeros(nv + c)
-        jac = np.zeros((nv + c, nv + c))
-        mu = z[nv:]
-        mass = -solver.bulk.copy()
-        for j, ph in enumerate(phases):
-            sl = slice(offs[j], offs[j + 1])
-            n = z[sl]
-            if ph.solution_index < 0:
-                k = s.pure_names.index(ph.model)
-                a = s.pure_stoich[k][None]
-                r[sl] = solver.g0[k] - a @ mu
-            else:
-                sp = s.solutions[ph.solution_index]
-                a = sp.stoich
-                muj, hj = _mu_jacobian(sp, n[None], solver.g0_of(sp), solver.t, solver.p)
-                solver.evals += len(n) + 1
-                r[sl] = muj[0] - a @ mu
-                jac[sl, sl] = hj[0]
-            jac[sl, nv:] = -a
-            jac[nv:, sl] = a.T
-            mass += a.T @ n
-        r[nv:] = mass
-        rmu = np.abs(r[:nv]).max() if nv else 0.0
-        if rmu < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
-            out = []
+        r, jac, offs, mass = _polish_system(solver, phases, z)
+        nv = offs[-1]
+        if np.abs(r[:nv]).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
             for j, ph in enumerate(phases):
-                out.append(PhaseState(ph.name, ph.model, ph.solution_index, z[offs[j]: offs[j + 1]].copy()))
-            return out, z[nv:].copy()
+                ph.amount_mol = z[offs[j]: offs[j + 1]].copy()
+            return phases, basis @ z[nv:]
         try:
             dz = np.linalg.solve(jac, -r)
         except np.linalg.LinAlgError:
             return None
+        if not np.all(np.isfinite(dz)):
+            return None
+        totals = np.array([z[offs[j]: offs[j + 1]].sum() for j in range(len(phases))])
+        new_totals = totals + np.array([dz[offs[j]: offs[j + 1]].sum() for j in range(len(phases))])
+        vanish = new_totals / totals
+        if vanish.min() < 0.0 and len(phases) > 1:
+            j = int(np.argmin(vanish))
+            keep = np.ones(len(z), bool)
+            keep[offs[j]: offs[j + 1]] = False
+            z = z[keep]
+            del phases[j]
+            continue
         amounts, dam = z[:nv], dz[:nv]
         neg = dam < 0
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(neg, -amounts / dam, np.inf)
-        alpha = min(1.0, 0.95 * ratio.min()) if nv else 1.0
-        if alpha < 1e-3:
-            return None
+        alpha = min(1.0, 0.99 * ratio.min()) if nv else 1.0
         z = z + alpha * dz
     return None
 
@@ -452,11 +475,10 @@ def equilibrate(
             diag["polish_failures"] = diag.get("polish_failures", 0) + 1
             continue
         phases, mu_p = polished
-        found, pure_d = _check(solver, phases, mu_p)
-        worst = _absent_min(solver, phases, found, pure_d)
-        bad_in_present = min((float(dv.min()) for dv in (f[1] for f in found)), default=0.0)
-        if min(worst, bad_in_present) >= -opt.check_tol:
-            return _finish(solver, phases, mu_p, found, pure_d, diag, t0)
+        refined = _refine_active_set(solver, phases, mu_p)
+        if refined is not None:
+            return _finish(solver, *refined, diag, t0)
+        found, _ = _check(solver, phases, mu_p)
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
                 if di < -opt.check_tol:
@@ -472,6 +494,38 @@ def equilibrate(
     )
 
 
+def _refine_active_set(solver: _Solver, phases, mu, max_add: int = 6):
+    """Add the phase with the most negative driving force and re-polish, until none is negative.
+
+    Returns (phases, mu, found, pure_d) of a verified minimum, or None.
+    """
+    for _ in range(max_add + 1):
+        found, pure_d = _check(solver, phases, mu)
+        best, best_d = None, -solver.opt.check_tol
+        present_pure = {ph.model for ph in phases if ph.solution_index < 0}
+        for k, d in enumerate(pure_d):
+            if d < best_d and solver.s.pure_names[k] not in present_pure:
+                best, best_d = (-1, k), d
+        for si, (x, dv) in enumerate(found):
+            j = int(np.argmin(dv))
+            if dv[j] < best_d:
+                best, best_d = (si, x[j]), dv[j]
+        if best is None:
+            return phases, mu, found, pure_d
+        seed = 1e-6 * min(float(ph.amount_mol.sum()) for ph in phases)
+        if best[0] == -1:
+            name = solver.s.pure_names[best[1]]
+            new = PhaseState(name, name, -1, np.array([seed]))
+        else:
+            name = solver.s.solutions[best[0]].name
+            new = PhaseState(name, name, best[0], seed * best[1] / best[1].sum())
+        polished = _polish(solver, _name_instances([*phases, new]), mu)
+        if polished is None:
+            return None
+        phases, mu = polished
+    return None
+
+
 def _add_column(solver: _Solver, cols: _Columns, si: int, x) -> int:
     comp, g = solver.solution_column(si, x)
     cols.add(comp, g, (si, x / x.sum()))
@@ -484,13 +538,7 @@ def _try_warm(solver: _Solver, warm: Equilibrium):
                                 for p in warm.phases], warm.mu)
     if polished is None:
         return None
-    phases, mu = polished
-    found, pure_d = _check(solver, phases, mu)
-    worst = _absent_min(solver, phases, found, pure_d)
-    bad_in_present = min((float(dv.min()) for dv in (f[1] for f in found)), default=0.0)
-    if min(worst, bad_in_present) < -solver.opt.check_tol:
-        return None
-    return phases, mu, found, pure_d
+    return _refine_active_set(solver, *polished)
 
 
 def _finish(solver, phases, mu, found, pure_d, diag, t0):

@@ -45,9 +45,15 @@ class PhaseSystem:
     pure_molar_mass: np.ndarray
     pure_is_liquid: np.ndarray
     solutions: tuple[SolutionPhase, ...]
+    basis: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))  # (c, r) orthonormal span of phases
     dataset_id: str = ""
     dataset_checksum: str = ""
     notes: list[str] = field(default_factory=list)
+
+    @property
+    def full_rank(self) -> bool:
+        """True when the phases span every active component (chemical potentials are then unique)."""
+        return self.basis.shape[1] == len(self.components)
 
     @property
     def n_pure(self) -> int:
@@ -126,9 +132,26 @@ def build_system(
         for m in sols
     )
     n_pure = len(pure)
+    basis = _span(stoich)
+    b = bulk_mol[active]
+    if np.abs(b - basis @ (basis.T @ b)).max() > 1e-9 * np.abs(b).max():
+        raise CompositionError(
+            "composition.oxides",
+            "the bulk composition lies outside the chemical system of the candidate phases "
+            f"({', '.join(all_em) or 'none'})",
+        )
     return PhaseSystem(
         components=tuple(dataset.oxides[i] for i in active), component_index=active,
         params=dataset.endmembers.subset(all_em), pure_names=tuple(pure), pure_stoich=stoich[:n_pure],
         pure_molar_mass=mass[:n_pure], pure_is_liquid=dataset.endmembers.is_liquid[idx][:n_pure],
-        solutions=sol_phases, dataset_id=dataset.id, dataset_checksum=dataset.checksum, notes=notes,
+        solutions=sol_phases, basis=basis, dataset_id=dataset.id, dataset_checksum=dataset.checksum, notes=notes,
     )
+
+
+def _span(stoich: np.ndarray) -> np.ndarray:
+    """Orthonormal basis (c, r) of the space spanned by the endmember compositions."""
+    if stoich.size == 0:
+        return np.zeros((stoich.shape[1], 0))
+    _, sv, vt = np.linalg.svd(stoich, full_matrices=False)
+    rank = int(np.sum(sv > 1e-10 * sv.max()))
+    return vt[:rank].T
