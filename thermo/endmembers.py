@@ -33,6 +33,7 @@ Units: P [Pa], T [K], energies [J/mol], volumes [m³/mol], K [Pa].
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 
@@ -66,6 +67,15 @@ class EndmemberParameters:
     landau: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))  # rows: tc0, smax, vmax (nan if none)
     order: np.ndarray = field(default_factory=lambda: np.zeros((0, 6)))  # rows: dh, dv, w, wv, n, factor
 
+    @cached_property
+    def state_groups(self) -> tuple[tuple[np.ndarray, EndmemberParameters], ...]:
+        """(mask, parameters) of the solid and of the liquid endmembers (empty groups omitted)."""
+        groups = []
+        for mask in (~self.is_liquid, self.is_liquid):
+            if mask.any():
+                groups.append((mask, self.subset([n for n, m in zip(self.names, mask, strict=True) if m])))
+        return tuple(groups)
+
     def subset(self, names: list[str] | tuple[str, ...]) -> EndmemberParameters:
         """Parameters of the named endmembers, in the order given."""
         index = [self.names.index(n) for n in names]
@@ -91,7 +101,10 @@ def cp_integrals(temperature_k, a, b, c, d):
     t, t0 = temperature_k, T_REF_K
     cp = a + b * t + c / t**2 + d / np.sqrt(t)
     int_cp = a * (t - t0) + 0.5 * b * (t**2 - t0**2) - c * (1.0 / t - 1.0 / t0) + 2.0 * d * (np.sqrt(t) - np.sqrt(t0))
-    int_cp_t = a * np.log(t / t0) + b * (t - t0) - 0.5 * c * (1.0 / t**2 - 1.0 / t0**2) - 2.0 * d * (1.0 / np.sqrt(t) - 1.0 / np.sqrt(t0))
+    int_cp_t = (
+        a * np.log(t / t0) + b * (t - t0) - 0.5 * c * (1.0 / t**2 - 1.0 / t0**2)
+        - 2.0 * d * (1.0 / np.sqrt(t) - 1.0 / np.sqrt(t0))
+    )
     return cp, int_cp, int_cp_t
 
 
@@ -184,18 +197,16 @@ def standard_state(params: EndmemberParameters, pressure_pa, temperature_k) -> S
     t = np.asarray(temperature_k, float)[..., None]
     p, t = np.broadcast_arrays(p, t)
     shape = np.broadcast_shapes(p.shape, params.h0.shape)
-    liquid = params.is_liquid
     cp, icp, icpt = cp_integrals(t, params.cp_a, params.cp_b, params.cp_c, params.cp_d)
     g = params.h0 + icp - t * (params.s0 + icpt)
     s = params.s0 + icpt
     out = {k: np.zeros(shape) for k in ("gv", "sv", "cpv", "v", "dvdt", "dvdp")}
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        for mask, fn in ((~liquid, _solid_volume_terms), (liquid, _liquid_volume_terms)):
-            if mask.any():
-                sub = params.subset([n for n, m in zip(params.names, mask, strict=True) if m])
-                vals = fn(p, t, sub)
-                for key, val in zip(out, vals, strict=True):
-                    out[key][..., mask] = np.broadcast_to(val, shape[:-1] + (int(mask.sum()),))
+        for mask, sub in params.state_groups:
+            fn = _liquid_volume_terms if sub.is_liquid[0] else _solid_volume_terms
+            vals = fn(p, t, sub)
+            for key, val in zip(out, vals, strict=True):
+                out[key][..., mask] = np.broadcast_to(val, (*shape[:-1], int(mask.sum())))
     g = g + out["gv"]
     s = s + out["sv"]
     cp = cp + out["cpv"]
@@ -229,7 +240,7 @@ def _ordering_terms(params: EndmemberParameters, p, t, shape):
         full = {}
         for key in ("g", "s", "v", "cp", "dv_dt", "dv_dp"):
             arr = np.zeros(shape)
-            arr[..., has] = np.broadcast_to(getattr(sub, key), shape[:-1] + (int(has.sum()),))
+            arr[..., has] = np.broadcast_to(getattr(sub, key), (*shape[:-1], int(has.sum())))
             full[key] = arr
         terms.append(ordering.OrderingTerms(**full))
     return terms

@@ -30,8 +30,10 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
+from scipy.constants import R
 from scipy.optimize import linprog
 
 from thermo import solutions as sol
@@ -46,6 +48,9 @@ class SolverOptions:
 
     driving_force_tol: float = 1.0  # column generation stops (and polish starts) when no D < -tol
     colgen_newton_iter: int = 8  # Newton iterations per start while generating columns
+    colgen_skip_rt: float = 3.0  # while generating columns, skip solutions whose sampled D > this x RT
+    check_skip_rt: float = 12.0  # in the final check, skip Newton refinement above this x RT
+    warm_skip_rt: float = 1.0  # same, when a warm start supplies last step's best compositions
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
     max_outer: int = 40
     newton_iter: int = 40
@@ -77,6 +82,7 @@ class Equilibrium:
     mu: np.ndarray  # chemical potentials of the active components [J/mol]
     standard: StandardState
     diagnostics: dict = field(default_factory=dict)
+    probes: dict = field(default_factory=dict)  # solution index -> best compositions found by the last check
 
 
 # ------------------------------------------------------------ solution helpers
@@ -175,6 +181,7 @@ def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6):
     return x, d_val, evals
 
 
+@lru_cache(maxsize=64)
 def _simplex_points(m: int, count: int = 60) -> np.ndarray:
     """Deterministic spread of compositions on an m-simplex (vertices inset, lattice or quasi-random)."""
     eps = 1e-4
@@ -185,7 +192,9 @@ def _simplex_points(m: int, count: int = 60) -> np.ndarray:
     else:
         rng = np.random.default_rng(12345 + m)
         pts += list(rng.dirichlet(np.full(m, 0.7), size=count))
-    return np.array(pts)
+    out = np.array(pts)
+    out.setflags(write=False)
+    return out
 
 
 # ------------------------------------------------------------------ LP stage
@@ -225,6 +234,8 @@ class _Solver:
         self.g0 = self.std.g_j_per_mol
         self.evals = 0
         self.pool = [_simplex_points(ph.model.size) for ph in system.solutions]
+        self.probes: dict = {}
+        self.skip_check_rt = options.check_skip_rt
 
     def g0_of(self, phase: SolutionPhase):
         return self.g0[phase.endmember_index]
@@ -251,15 +262,26 @@ class _Solver:
                 cols.add(comp, g, (wp.solution_index, wp.amount_mol / wp.amount_mol.sum()))
         return cols
 
-    def best_driving_forces(self, mu, extra_starts=None, iters=None):
-        """Minimize every solution's driving force; returns list of (x (K,m), D (K,))."""
+    def best_driving_forces(self, mu, extra_starts=None, iters=None, skip_above=np.inf):
+        """Minimize every solution's driving force; returns list of (x (K,m), D (K,)).
+
+        Solutions whose best sampled driving force exceeds ``skip_above`` [J/mol]
+        (and that have no extra starts) are not refined by Newton's method.
+        """
         out = []
         for si, ph in enumerate(self.s.solutions):
             pool = self.pool[si]
             d = _driving_force(ph, pool, self.g0_of(ph), self.t, self.p, mu)
             self.evals += len(pool)
             order = np.argsort(d)[: self.opt.starts]
-            starts = pool[order]
+            starts, d_starts = pool[order], d[order]
+            if si in self.probes:
+                dp = _driving_force(ph, self.probes[si], self.g0_of(ph), self.t, self.p, mu)
+                self.evals += len(dp)
+                starts, d_starts = np.vstack([self.probes[si], starts]), np.concatenate([dp, d_starts])
+            if d_starts.min() > skip_above and not (extra_starts and si in extra_starts):
+                out.append((starts, d_starts))
+                continue
             if extra_starts and si in extra_starts:
                 starts = np.vstack([starts, extra_starts[si]])
             x, dv, ev = _minimize_driving_force(
@@ -393,12 +415,23 @@ def _check(solver: _Solver, phases, mu):
     """Smallest driving force of every solution (including second instances) and pure phase."""
     extra = {}
     for ph in phases:
-        if ph.solution_index >= 0:
+        if ph.solution_index >= 0 and _can_unmix(solver.s.solutions[ph.solution_index].model, solver.t, solver.p):
             extra.setdefault(ph.solution_index, []).append(ph.amount_mol / ph.amount_mol.sum())
     extra = {k: np.array(v) for k, v in extra.items()}
-    found = solver.best_driving_forces(mu, extra)
+    found = solver.best_driving_forces(mu, extra, skip_above=solver.skip_check_rt * R * solver.t)
     pure_d = solver.g0[: solver.s.n_pure] - solver.s.pure_stoich @ mu
     return found, pure_d
+
+
+def _can_unmix(model, t, p) -> bool:
+    """False when G is convex in composition: one ideal mixing site or units and no positive W."""
+    one_site = model.kind == "units" or len(set(model.site_of_column.tolist())) <= 1
+    return not (one_site and np.all(model.w(t, p) <= 0.0))
+
+
+def _probes(found) -> dict:
+    """Best composition of each solution from a check, kept to seed the next (warm) check."""
+    return {si: x[[int(np.argmin(dv))]] for si, (x, dv) in enumerate(found)}
 
 
 def _absent_min(solver, phases, found, pure_d):
@@ -446,6 +479,7 @@ def equilibrate(
     diag = {"outer_iterations": 0, "warm_start_used": False}
     if warm is not None and warm.system is system:
         result = _try_warm(solver, warm)
+        solver.skip_check_rt = opt.check_skip_rt
         if result is not None:
             phases, mu, found, pure_d = result
             diag["warm_start_used"] = True
@@ -456,7 +490,9 @@ def equilibrate(
     for outer in range(opt.max_outer):
         diag["outer_iterations"] = outer + 1
         lam, mu = _solve_lp(cols, solver.bulk, mu)
-        found = solver.best_driving_forces(mu, iters=opt.colgen_newton_iter)
+        found = solver.best_driving_forces(
+            mu, iters=opt.colgen_newton_iter, skip_above=opt.colgen_skip_rt * R * solver.t
+        )
         added = 0
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
@@ -534,6 +570,9 @@ def _add_column(solver: _Solver, cols: _Columns, si: int, x) -> int:
 
 
 def _try_warm(solver: _Solver, warm: Equilibrium):
+    solver.probes = dict(warm.probes)
+    if solver.probes:
+        solver.skip_check_rt = solver.opt.warm_skip_rt
     polished = _polish(solver, [PhaseState(p.name, p.model, p.solution_index, p.amount_mol.copy())
                                 for p in warm.phases], warm.mu)
     if polished is None:
@@ -552,4 +591,6 @@ def _finish(solver, phases, mu, found, pure_d, diag, t0):
         mass_balance_residual=float(np.abs(mass).max() / np.abs(solver.bulk).max()),
         wall_time_s=time.perf_counter() - t0,
     )
-    return Equilibrium(solver.s, solver.p, solver.t, solver.bulk, _name_instances(phases), mu, solver.std, diag)
+    return Equilibrium(
+        solver.s, solver.p, solver.t, solver.bulk, _name_instances(phases), mu, solver.std, diag, _probes(found)
+    )

@@ -18,6 +18,7 @@ J/mol, pressure in Pa, temperature in K, volumes in m³/mol.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy.constants import R
@@ -103,11 +104,11 @@ def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
 _Q_GRID = np.concatenate([np.linspace(0.0, 0.995, 200), 1.0 - np.logspace(-2.5, -13, 40)])
 
 
-def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 60):
+def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 40):
     """Order parameter Q in [0, 1) minimizing the Bragg-Williams G (vectorized).
 
-    A grid over Q finds the global minimum's bracket; bisection on ∂G/∂Q
-    refines it to round-off (``iterations`` halvings of a bracket < 0.005).
+    A grid over Q brackets the global minimum; safeguarded Newton steps on
+    ∂G/∂Q (bisection when a step leaves the bracket) refine it to round-off.
     """
     p, t, *args = np.broadcast_arrays(
         np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
@@ -117,18 +118,44 @@ def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iter
     idx = np.argmin(g, axis=0)
     lo = _Q_GRID[np.clip(idx - 1, 0, None)]
     hi = _Q_GRID[np.clip(idx + 1, None, _Q_GRID.size - 1)]
+    q = _Q_GRID[idx]
+    done = np.zeros(q.shape, bool)
     for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        _, gq, *_ = _bw_g(mid, p, t, *args)
-        lo = np.where(gq < 0.0, mid, lo)
-        hi = np.where(gq < 0.0, hi, mid)
-    return 0.5 * (lo + hi)
+        _, gq, gqq, *_ = _bw_g(q, p, t, *args)
+        lo = np.where(gq < 0.0, q, lo)
+        hi = np.where(gq < 0.0, hi, q)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = q - gq / gqq
+        inside = (newton >= lo) & (newton <= hi) & np.isfinite(newton)
+        q_new = np.where(done, q, np.where(inside, newton, 0.5 * (lo + hi)))
+        done |= np.abs(q_new - q) <= 1e-13
+        q = q_new
+        if done.all():
+            break
+    return q
 
 
 def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):
     q = equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
     g, _, gqq, s, ds = _bw_g(q, pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
     return q, g, gqq, s, ds
+
+
+@lru_cache(maxsize=256)
+def _reference(dh, dv, w, wv, n, factor):
+    """G and S of the Bragg-Williams term at 298.15 K and zero pressure (cached per parameter set)."""
+    _, g0, _, s0, _ = _bw_state(0.0, T_REF_K, dh, dv, w, wv, n, factor)
+    return float(g0), float(s0)
+
+
+def _reference_arrays(*params):
+    """Elementwise cached reference G and S for (broadcast) parameter arrays."""
+    arrays = np.broadcast_arrays(*[np.asarray(x, float) for x in params])
+    flat = [a.ravel() for a in arrays]
+    pairs = [_reference(*(float(f[i]) for f in flat)) for i in range(flat[0].size)]
+    g0 = np.array([pr[0] for pr in pairs]).reshape(arrays[0].shape)
+    s0 = np.array([pr[1] for pr in pairs]).reshape(arrays[0].shape)
+    return g0, s0
 
 
 def bragg_williams(pressure_pa, temperature_k, dh, dv, w, wv, n, factor) -> OrderingTerms:
@@ -142,7 +169,7 @@ def bragg_williams(pressure_pa, temperature_k, dh, dv, w, wv, n, factor) -> Orde
     """
     p, t = np.asarray(pressure_pa, float), np.asarray(temperature_k, float)
     q, g, gqq, s, ds = _bw_state(p, t, dh, dv, w, wv, n, factor)
-    _, g0, _, s0, _ = _bw_state(0.0, T_REF_K, dh, dv, w, wv, n, factor)
+    g0, s0 = _reference_arrays(dh, dv, w, wv, n, factor)
     h0 = g0 + T_REF_K * s0
     g = g - (h0 - t * s0)
     s = s - s0

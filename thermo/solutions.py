@@ -100,20 +100,20 @@ def ideal_entropy(model: SolutionModel, amounts):
 
 
 def _excess_parts(model: SolutionModel, p, w):
-    """G_ex per mole and μ_ex of each endmember for an interaction matrix ``w``."""
+    """G_ex per mole and μ_ex of each endmember for an interaction matrix ``w``.
+
+    With B_ij = 2W_ij/(α_i + α_j) (i < j), G_ex = (Σ α_k p_k)·φᵀBφ and, expanding
+    q = e_l - φ in Holland & Powell (2003) Eq. 4, μ_ex,l = α_l[((B + Bᵀ)φ)_l - φᵀBφ].
+    """
     a = model.alpha
     ap = p * a
     asum = np.sum(ap, axis=-1, keepdims=True)
     phi = ap / asum
     bij = 2.0 * w / (a[:, None] + a[None, :])  # upper-triangular
-    g_ex = asum[..., 0] * np.einsum("...i,ij,...j->...", phi, bij, phi)
-    n = model.size
-    mu = []
-    for ell in range(n):
-        q = -phi.copy()
-        q[..., ell] += 1.0
-        mu.append(a[ell] * np.einsum("...i,ij,...j->...", q, -bij, q))
-    return g_ex, np.stack(mu, axis=-1)
+    quad = np.sum(phi * (phi @ bij.T), axis=-1)
+    g_ex = asum[..., 0] * quad
+    mu = a * (phi @ (bij + bij.T) - quad[..., None])
+    return g_ex, mu
 
 
 def excess(model: SolutionModel, amounts, temperature_k: float, pressure_pa: float):
