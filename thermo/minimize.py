@@ -370,43 +370,66 @@ def _polish_system(solver: _Solver, phases: list[PhaseState], z):
 def _polish(solver: _Solver, phases: list[PhaseState], mu0):
     """Newton solution of μ_i(phase) = a_i·μ and mass balance, to round-off.
 
-    Phases whose amount the Newton step drives below zero are removed (the
+    Unknowns are ln n_i for the endmembers of solution phases (so amounts stay
+    positive and the ideal-mixing terms are linear), the amounts of pure phases,
+    and the reduced chemical potentials. A pure phase whose amount the Newton step
+    drives negative, or a solution phase whose amount collapses, is removed (the
     minimality check adds back any phase that should be present). Returns
     (phases, μ) or None if the iteration does not converge.
     """
     basis = solver.s.basis
     phases = [PhaseState(p.name, p.model, p.solution_index, np.asarray(p.amount_mol, float).copy()) for p in phases]
-    z = np.concatenate([np.concatenate([ph.amount_mol for ph in phases]), basis.T @ mu0])
     scale_b = np.abs(solver.bulk).max()
+    tiny = 1e-300
+    mu_r = basis.T @ mu0
     for _ in range(solver.opt.polish_iter):
+        z = np.concatenate([*(ph.amount_mol for ph in phases), mu_r])
         r, jac, offs, mass = _polish_system(solver, phases, z)
         nv = offs[-1]
         if np.abs(r[:nv]).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
-            for j, ph in enumerate(phases):
-                ph.amount_mol = z[offs[j]: offs[j + 1]].copy()
-            return phases, basis @ z[nv:]
+            return phases, basis @ mu_r
+        is_log = np.zeros(nv, bool)
+        totals = np.zeros(nv)
+        for j, ph in enumerate(phases):
+            is_log[offs[j]: offs[j + 1]] = ph.solution_index >= 0
+            totals[offs[j]: offs[j + 1]] = ph.amount_mol.sum()
+        amounts = np.maximum(z[:nv], tiny)
+        # endmembers below 1e-30 of their phase are negligible: frozen, their residual ignored
+        frozen = is_log & (amounts < 1e-30 * totals)
+        if np.abs(np.where(frozen, 0.0, r[:nv])).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
+            return phases, basis @ mu_r
+        jac[:, :nv][:, is_log] *= amounts[is_log]
+        act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
+        dz = np.zeros(len(z))
         try:
-            dz = np.linalg.solve(jac, -r)
+            dz[act] = np.linalg.solve(jac[np.ix_(act, act)], -r[act])
         except np.linalg.LinAlgError:
             return None
         if not np.all(np.isfinite(dz)):
             return None
-        totals = np.array([z[offs[j]: offs[j + 1]].sum() for j in range(len(phases))])
-        new_totals = totals + np.array([dz[offs[j]: offs[j + 1]].sum() for j in range(len(phases))])
-        vanish = new_totals / totals
-        if vanish.min() < 0.0 and len(phases) > 1:
-            j = int(np.argmin(vanish))
-            keep = np.ones(len(z), bool)
-            keep[offs[j]: offs[j + 1]] = False
-            z = z[keep]
-            del phases[j]
-            continue
-        amounts, dam = z[:nv], dz[:nv]
-        neg = dam < 0
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(neg, -amounts / dam, np.inf)
-        alpha = min(1.0, 0.99 * ratio.min()) if nv else 1.0
-        z = z + alpha * dz
+        step = dz[:nv]
+        step[is_log] = np.clip(step[is_log], -4.0, 2.0)
+        alpha = 1.0
+        pure_idx = np.flatnonzero(~is_log)
+        new_pure = amounts[pure_idx] + alpha * step[pure_idx]
+        if pure_idx.size and new_pure.min() < 0.0:
+            ratio = -amounts[pure_idx] / (alpha * step[pure_idx])
+            k = int(np.argmin(np.where(new_pure < 0, ratio, np.inf)))
+            if ratio[k] < 0.5 and len(phases) > 1:
+                j = int(np.searchsorted(offs, pure_idx[k], side="right") - 1)
+                del phases[j]
+                continue
+            alpha *= 0.99 * ratio[k]
+        for j, ph in enumerate(phases):
+            sl = slice(offs[j], offs[j + 1])
+            if ph.solution_index >= 0:
+                ph.amount_mol = amounts[sl] * np.exp(alpha * step[sl])
+            else:
+                ph.amount_mol = amounts[sl] + alpha * step[sl]
+        mu_r = mu_r + alpha * dz[nv:]
+        totals = np.array([ph.amount_mol.sum() for ph in phases])
+        if len(phases) > 1 and totals.min() < 1e-13 * scale_b:
+            del phases[int(np.argmin(totals))]
     return None
 
 
