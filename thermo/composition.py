@@ -8,6 +8,7 @@ kilogram of material.
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 
@@ -67,7 +68,8 @@ def _check_amounts(oxides: Mapping[str, float]) -> None:
         where = f"composition.oxides.{ox}"
         if ox not in KNOWN_OXIDES:
             raise CompositionError(where, f"unknown oxide {ox!r}; known oxides: {', '.join(KNOWN_OXIDES)}")
-        if isinstance(val, bool) or not isinstance(val, int | float) or not np.isfinite(val):
+        # numbers.Real also admits numpy scalars (np.int64, np.float32), which are not int/float subclasses
+        if isinstance(val, bool | np.bool_) or not isinstance(val, numbers.Real) or not np.isfinite(val):
             raise CompositionError(where, "must be a finite number")
         if val < 0:
             raise CompositionError(where, f"must not be negative (got {val})")

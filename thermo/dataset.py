@@ -12,7 +12,7 @@ import csv
 import hashlib
 import math
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -32,7 +32,9 @@ _REQUIRED = (
     "cp_c_j_k_per_mol", "cp_d_j_per_mol_k05", "alpha0_per_k", "k0_gpa", "k0_prime", "k0_dprime_per_gpa",
 )
 _LANDAU = ("landau_tc0_k", "landau_smax_j_per_mol_k", "landau_vmax_m3_per_mol")
-_ORDER = ("order_dh_j_per_mol", "order_dv_m3_per_mol", "order_w_j_per_mol", "order_wv_m3_per_mol", "order_n", "order_factor")
+_ORDER = (
+    "order_dh_j_per_mol", "order_dv_m3_per_mol", "order_w_j_per_mol", "order_wv_m3_per_mol", "order_n", "order_factor",
+)
 _TEXT = ("name", "formula", "state", "confidence", "recall_status", "source")
 _POSITIVE = ("v0_m3_per_mol", "k0_gpa", "n_atoms")
 #: Oxides of cations outside a dataset's components; endmembers carrying them load
@@ -112,7 +114,9 @@ def _read_row(path: Path, row_no: int, rec: dict[str, str], oxides: tuple[str, .
     for group in (_LANDAU, _ORDER):
         present = [not math.isnan(vals[k]) for k in group]
         if any(present) and not all(present):
-            raise DatasetError(f"{path.name}: row {row_no} ({name}): fields {', '.join(group)} must be all set or all empty")
+            raise DatasetError(
+                f"{path.name}: row {row_no} ({name}): fields {', '.join(group)} must be all set or all empty"
+            )
     try:
         mass = molar_mass_g_per_mol(rec["formula"]) / 1000.0
         stoich = oxide_stoichiometry(rec["formula"], oxides + OUTSIDE_OXIDES)
@@ -125,12 +129,15 @@ def _read_row(path: Path, row_no: int, rec: dict[str, str], oxides: tuple[str, .
 
 def read_endmembers(path: Path, oxides: tuple[str, ...]):
     """Read and validate an endmember CSV; returns parameters, info and stoichiometry."""
-    rows, infos, stoich = [], {}, []
+    rows, infos, stoich, first_row = [], {}, [], {}
     with path.open(encoding="utf-8", newline="") as fh:
         for row_no, rec in enumerate(csv.DictReader(fh), start=2):
             vals, info, vec = _read_row(path, row_no, rec, oxides)
             if info.name in infos:
-                raise DatasetError(f"{path.name}: row {row_no}: duplicate endmember name {info.name!r}")
+                raise DatasetError(
+                    f"{path.name}: row {row_no} ({info.name}): field 'name' repeats row {first_row[info.name]}"
+                )
+            first_row[info.name] = row_no
             rows.append(vals)
             infos[info.name] = info
             stoich.append(vec)
@@ -175,17 +182,73 @@ def _manifest(directory: Path) -> dict[str, Any]:
     return man
 
 
+def _listed_files(directory: Path, man: dict[str, Any]) -> list[str]:
+    """The manifest's ``files``: they must exist and include endmembers.csv (the checksum covers only these)."""
+    files = list(man["files"])
+    if "endmembers.csv" not in files:
+        raise DatasetError("manifest.toml: key 'files' must list endmembers.csv (only listed files are checksummed)")
+    for name in files:
+        if not (directory / name).is_file():
+            raise DatasetError(f"manifest.toml: key 'files' lists {name!r}, which does not exist")
+    return files
+
+
+# --- liquid volumes (liquid_volumes.toml) -------------------------------------------------------------------------
+_LIQUID_VOLUME_KEYS = {
+    "reference_temperature_k", "volume_cm3_per_mol", "bulk_modulus_gpa", "source", "fitted_to", "note",
+}
+
+
+def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | None) -> EndmemberParameters:
+    """Per-liquid volume and bulk-modulus factors from ``liquid_volumes.toml`` (thermo.liquid_eos).
+
+    The file states, for a liquid, its volume and/or isothermal bulk modulus at 1 bar and a
+    reference temperature; they are turned into factors on the endmembers.csv V0 and K0 (which
+    stay as recalled). Without the file every liquid keeps factors 1 and the default β.
+    """
+    from thermo.liquid_eos import DEFAULT_DLNK_DT_PER_K, one_bar_state
+
+    table = table or {}
+    beta = float(table.get("bulk_modulus_temperature_coefficient_per_k", DEFAULT_DLNK_DT_PER_K))
+    if not (math.isfinite(beta) and 0.0 <= beta < 1e-3):
+        raise DatasetError("liquid_volumes.toml: bulk_modulus_temperature_coefficient_per_k must be in [0, 1e-3)")
+    out = np.tile([1.0, 1.0, beta], (len(params.names), 1))
+    for name, entry in table.get("liquids", {}).items():
+        where = f"liquid_volumes.toml: [liquids.{name}]"
+        if name not in params.names or not params.is_liquid[params.names.index(name)]:
+            raise DatasetError(f"{where}: not a liquid endmember of endmembers.csv")
+        if set(entry) - _LIQUID_VOLUME_KEYS:
+            raise DatasetError(f"{where}: unknown keys {sorted(set(entry) - _LIQUID_VOLUME_KEYS)}")
+        values = {k: entry.get(k) for k in ("reference_temperature_k", "volume_cm3_per_mol", "bulk_modulus_gpa")}
+        if not all(v is None or (isinstance(v, int | float) and math.isfinite(v) and v > 0) for v in values.values()):
+            raise DatasetError(f"{where}: temperature, volume and bulk modulus must be positive numbers")
+        if values["reference_temperature_k"] is None or not entry.get("source"):
+            raise DatasetError(f"{where}: reference_temperature_k and source are required")
+        i = params.names.index(name)
+        v1, k1 = one_bar_state(values["reference_temperature_k"], params.v0[i], params.alpha0[i], params.k0_pa[i], beta)
+        if values["volume_cm3_per_mol"] is not None:
+            out[i, 0] = values["volume_cm3_per_mol"] * 1e-6 / v1
+        if values["bulk_modulus_gpa"] is not None:
+            out[i, 1] = values["bulk_modulus_gpa"] * 1e9 / k1
+    return replace(params, liquid_volume=out)
+
+
 def load_dataset_dir(directory: Path) -> Dataset:
     """Load and validate the dataset stored in ``directory``."""
     man = _manifest(directory)
     oxides = tuple(man["oxides"])
+    files = _listed_files(directory, man)
     params, infos, stoich = read_endmembers(directory / "endmembers.csv", oxides)
     extra = {}
-    for name in man["files"]:
+    for name in files:
         if name.endswith(".toml"):
-            extra[Path(name).stem] = tomllib.loads((directory / name).read_text(encoding="utf-8"))
+            try:
+                extra[Path(name).stem] = tomllib.loads((directory / name).read_text(encoding="utf-8"))
+            except tomllib.TOMLDecodeError as exc:
+                raise DatasetError(f"{name}: not valid TOML: {exc}") from None
+    params = apply_liquid_volumes(params, extra.get("liquid_volumes"))
     return Dataset(
-        id=man["id"], title=man["title"], checksum=checksum(directory, list(man["files"])), oxides=oxides,
+        id=man["id"], title=man["title"], checksum=checksum(directory, files), oxides=oxides,
         pressure_range_gpa=tuple(man["validity"]["pressure_gpa"]),
         temperature_range_k=tuple(man["validity"]["temperature_k"]),
         endmembers=params, info=infos, stoichiometry=stoich[:, : len(oxides)],

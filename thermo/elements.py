@@ -33,7 +33,8 @@ ATOMIC_WEIGHT_G_PER_MOL: dict[str, float] = {
     "Ni": 58.6934,
 }
 
-_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*\.?\d*)")
+#: An element symbol and an optional count (integer or decimal; a lone "." is not a count).
+_TOKEN = re.compile(r"([A-Z][a-z]?)((?:\d+(?:\.\d*)?|\.\d+)?)")
 
 
 def parse_formula(formula: str) -> dict[str, float]:

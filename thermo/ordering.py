@@ -101,7 +101,7 @@ def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
     return g, gq, gqq, s, ds
 
 
-_Q_GRID = np.concatenate([np.linspace(0.0, 0.995, 200), 1.0 - np.logspace(-2.5, -13, 40)])
+_Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
 
 
 def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 40):
@@ -113,9 +113,13 @@ def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iter
     p, t, *args = np.broadcast_arrays(
         np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
     )
-    grid = _Q_GRID.reshape((-1,) + (1,) * p.ndim)
-    g, *_ = _bw_g(grid, p, t, *args)
-    idx = np.argmin(g, axis=0)
+    best = np.full(p.shape, np.inf)
+    idx = np.zeros(p.shape, int)
+    for k, qk in enumerate(_Q_GRID):  # running minimum: memory stays O(points)
+        gk = _bw_g(qk, p, t, *args)[0]
+        better = gk < best
+        best = np.where(better, gk, best)
+        idx = np.where(better, k, idx)
     lo = _Q_GRID[np.clip(idx - 1, 0, None)]
     hi = _Q_GRID[np.clip(idx + 1, None, _Q_GRID.size - 1)]
     q = _Q_GRID[idx]
