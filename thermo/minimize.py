@@ -256,6 +256,9 @@ class _Solver:
             self.evals += len(pts)
             for x, g in zip(pts, gs, strict=True):
                 cols.add(x @ ph.stoich, g, (si, x))
+            # exact pure-endmember columns (activity 1): bulks on a solution's boundary stay reachable
+            for i in range(ph.model.size):
+                cols.add(ph.stoich[i], self.g0_of(ph)[i], (si, np.eye(ph.model.size)[i]))
         for wp in warm_phases or []:
             if wp.solution_index >= 0:
                 comp, g = self.solution_column(wp.solution_index, wp.amount_mol)
@@ -367,6 +370,22 @@ def _polish_system(solver: _Solver, phases: list[PhaseState], z):
     return r, jac, offs, mass
 
 
+def _merge_twins(solver: _Solver, phases: list[PhaseState], tol: float = 1e-5) -> bool:
+    """Merge two instances of one solution whose compositions coincide; True if merged."""
+    for j, a in enumerate(phases):
+        for k in range(j + 1, len(phases)):
+            b = phases[k]
+            if a.solution_index < 0 or a.solution_index != b.solution_index:
+                continue
+            a_st = solver.s.solutions[a.solution_index].stoich
+            fa, fb = _oxide_fraction(a.amount_mol @ a_st), _oxide_fraction(b.amount_mol @ a_st)
+            if np.abs(fa - fb).max() < tol:
+                a.amount_mol = a.amount_mol + b.amount_mol
+                del phases[k]
+                return True
+    return False
+
+
 def _polish(solver: _Solver, phases: list[PhaseState], mu0):
     """Newton solution of μ_i(phase) = a_i·μ and mass balance, to round-off.
 
@@ -386,6 +405,12 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         z = np.concatenate([*(ph.amount_mol for ph in phases), mu_r])
         r, jac, offs, mass = _polish_system(solver, phases, z)
         nv = offs[-1]
+        negligible = [j for j, ph in enumerate(phases) if ph.amount_mol.sum() < 1e-12 * scale_b]
+        if negligible and len(phases) > 1:
+            del phases[negligible[0]]
+            continue
+        if _merge_twins(solver, phases):
+            continue
         if np.abs(r[:nv]).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
             return phases, basis @ mu_r
         is_log = np.zeros(nv, bool)

@@ -82,15 +82,20 @@ def _normalise(amounts):
     return amounts / np.sum(amounts, axis=-1, keepdims=True)
 
 
+def _floored_log(x):
+    """ln x with x floored at 1e-300 (absent species: a finite, very negative value; complex-safe)."""
+    return np.log(np.where(np.real(x) > 1e-300, x, 1e-300))
+
+
 def ideal_log_activity(model: SolutionModel, amounts):
     """ln a_i(ideal) of every endmember, shape (..., n)."""
     p = _normalise(amounts)
     if model.kind == "units":
         x = p * model.units
         x = x / np.sum(x, axis=-1, keepdims=True)
-        return model.units * np.log(x)
+        return model.units * _floored_log(x)
     xs = p @ model.occupancy  # site-species fractions (..., n_cols)
-    return model.log_k + np.log(xs) @ (model.occupancy * model.multiplicity).T
+    return model.log_k + _floored_log(xs) @ (model.occupancy * model.multiplicity).T
 
 
 def ideal_entropy(model: SolutionModel, amounts):
