@@ -53,6 +53,7 @@ class SolverOptions:
     warm_skip_rt: float = 1.0  # same, when a warm start supplies last step's best compositions
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
     max_outer: int = 40
+    max_setbacks: int = 3  # failed polish/refine rounds before falling back to column generation alone
     newton_iter: int = 40
     polish_iter: int = 80
     merge_distance: float = 0.1  # columns of one solution closer than this (oxide mole fractions) are one phase
@@ -210,11 +211,15 @@ class _Columns:
         self.owner.append(owner)
 
 
+#: Tight feasibility tolerances: reduced costs (driving forces) must resolve ~1e-4 J/mol on scaled objectives.
+_HIGHS_OPTIONS = {"primal_feasibility_tolerance": 1e-10, "dual_feasibility_tolerance": 1e-10}
+
+
 def _solve_lp(cols: _Columns, bulk, mu_ref):
     a = np.array(cols.comp).T
     g = np.array(cols.g) - mu_ref @ a
     scale = max(1.0, float(np.abs(g).max()))
-    res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method="highs")
+    res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method="highs", options=_HIGHS_OPTIONS)
     if res.status == 2:
         raise CompositionError(
             "composition.oxides",
@@ -299,18 +304,32 @@ def _oxide_fraction(comp):
     return comp / comp.sum()
 
 
+def _mergeable(solver: _Solver, cols: _Columns, lam, group: list[int], k: int, merge_distance: float) -> bool:
+    """Column k joins a group of columns of the same solution if close and on a convex stretch of G.
+
+    Convexity test: G at the amount-weighted composition must not exceed the columns' weighted
+    G (otherwise the columns straddle a miscibility gap and stay separate phases).
+    """
+    first = cols.owner[group[0]]
+    if cols.owner[k][0] == -1 or first[0] != cols.owner[k][0]:
+        return False
+    dist = np.abs(_oxide_fraction(cols.comp[k]) - _oxide_fraction(cols.comp[group[0]])).max()
+    if dist >= merge_distance:
+        return False
+    members = [*group, k]
+    n = sum(lam[j] * cols.owner[j][1] for j in members)
+    _, g_merged = solver.solution_column(first[0], n)
+    g_columns = sum(lam[j] * cols.g[j] for j in members) / n.sum()
+    return g_merged <= g_columns + 1e-9 * abs(g_columns)
+
+
 def _phases_from_lp(solver: _Solver, cols: _Columns, lam, merge_distance: float) -> list[PhaseState]:
     """Merge active LP columns into phases (one per distinct composition of a solution)."""
     active = np.flatnonzero(lam > 1e-12 * max(1.0, lam.max()))
     groups: list[list[int]] = []
     for k in active:
-        owner = cols.owner[k]
         for grp in groups:
-            o2 = cols.owner[grp[0]]
-            if owner[0] == -1 or o2[0] != owner[0]:
-                continue
-            dist = np.abs(_oxide_fraction(cols.comp[k]) - _oxide_fraction(cols.comp[grp[0]])).max()
-            if dist < merge_distance:
+            if _mergeable(solver, cols, lam, grp, k, merge_distance):
                 grp.append(k)
                 break
         else:
@@ -531,22 +550,33 @@ def equilibrate(
         if result is not None:
             phases, mu, found, pure_d = result
             diag["warm_start_used"] = True
+            diag["polished"] = True
             return _finish(solver, phases, mu, found, pure_d, diag, t0)
     cols = solver.initial_columns(warm.phases if warm is not None and warm.system is system else None)
     mu = np.linalg.lstsq(np.array(cols.comp), np.array(cols.g), rcond=None)[0]
     previous_set = None
+    setbacks = 0
     for outer in range(opt.max_outer):
         diag["outer_iterations"] = outer + 1
+        lp_only = setbacks >= opt.max_setbacks
         lam, mu = _solve_lp(cols, solver.bulk, mu)
+        tol = opt.check_tol if lp_only else opt.driving_force_tol
         found = solver.best_driving_forces(
-            mu, iters=opt.colgen_newton_iter, skip_above=opt.colgen_skip_rt * R * solver.t
+            mu, iters=opt.newton_iter if lp_only else opt.colgen_newton_iter,
+            skip_above=(opt.check_skip_rt if lp_only else opt.colgen_skip_rt) * R * solver.t,
         )
         added = 0
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
-                if di < -opt.driving_force_tol:
+                if di < -tol:
                     added += _add_column(solver, cols, si, xi)
         phases = _phases_from_lp(solver, cols, lam, opt.merge_distance)
+        if lp_only:
+            if not added:
+                diag["polished"] = False
+                pure_d = solver.g0[: system.n_pure] - system.pure_stoich @ mu
+                return _finish(solver, phases, mu, found, pure_d, diag, t0)
+            continue
         current_set = sorted(ph.name for ph in phases)
         stable = current_set == previous_set
         previous_set = current_set
@@ -557,11 +587,14 @@ def equilibrate(
             polished = _polish(solver, _phases_from_lp(solver, cols, lam, np.inf), mu)
         if polished is None:
             diag["polish_failures"] = diag.get("polish_failures", 0) + 1
+            setbacks += 1
             continue
         phases, mu_p = polished
         refined = _refine_active_set(solver, phases, mu_p)
         if refined is not None:
+            diag["polished"] = True
             return _finish(solver, *refined, diag, t0)
+        setbacks += 1
         found, _ = _check(solver, phases, mu_p)
         for si, (x, dv) in enumerate(found):
             for xi, di in zip(x, dv, strict=True):
