@@ -18,14 +18,14 @@ Solids
 
 Liquids
     The negative or small S0 of fitted liquid endmembers gives no meaningful
-    Einstein temperature, so liquids use a separate volume treatment (as in
-    HP2011, §"liquids"; recalled from the paper, not verified against it):
-    V(1 bar, T) = V0·exp(α0(T - T0)), a bulk modulus falling linearly with
-    temperature K(T) = K0[1 - 1.5e-4·(T - T0)], K'' = -K'/K(T), and the Tait
-    form at temperature T from 0 to P. Cp is the constant ``a`` (b = c = d = 0).
-    The temperature derivatives of the pressure integral are taken by 5-point
-    central differences (step 0.5 K, relative error < 1e-9); the rest is analytic.
-    The form is validated against the forsterite melting curve (tests).
+    Einstein temperature, so liquids use an isothermal modified Tait equation
+    at temperature T about a 1-bar state V1(T) = V0·exp(α0(T - T0)),
+    K(T) = K0[1 - β(T - T0)], with K'' = -K'/K(T) (thermo.liquid_eos, where
+    the equations, their sources and the reasons for this form are given).
+    Per-liquid volume and bulk-modulus factors calibrated on melting curves
+    come from the dataset file liquid_volumes.toml (field ``liquid_volume``;
+    docs/liquid-volumes.md). Cp is the constant ``a`` (b = c = d = 0). All
+    derivatives are analytic.
 
 Units: P [Pa], T [K], energies [J/mol], volumes [m³/mol], K [Pa].
 """
@@ -37,11 +37,11 @@ from functools import cached_property
 
 import numpy as np
 
-from thermo import ordering
+from thermo import liquid_eos, ordering
 
 T_REF_K = 298.15
-#: Temperature coefficient of liquid bulk moduli [1/K] (HP2011 liquids; from memory).
-LIQUID_DK_DT_PER_K = 1.5e-4
+#: Default relative temperature coefficient β of liquid bulk moduli [1/K] (see thermo.liquid_eos).
+LIQUID_DK_DT_PER_K = liquid_eos.DEFAULT_DLNK_DT_PER_K
 _EINSTEIN_A = 10636.0  # K·J/(mol K): θ = 10636/(S0/n + 6.44), HP2011 Eq. 4
 _EINSTEIN_B = 6.44
 
@@ -66,6 +66,8 @@ class EndmemberParameters:
     k0_dprime_per_pa: np.ndarray
     landau: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))  # rows: tc0, smax, vmax (nan if none)
     order: np.ndarray = field(default_factory=lambda: np.zeros((0, 6)))  # rows: dh, dv, w, wv, n, factor
+    #: rows: volume factor, bulk-modulus factor, β [1/K] of liquids (thermo.liquid_eos); empty: 1, 1, default β
+    liquid_volume: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
 
     @cached_property
     def state_groups(self) -> tuple[tuple[np.ndarray, EndmemberParameters], ...]:
@@ -79,7 +81,8 @@ class EndmemberParameters:
     def subset(self, names: list[str] | tuple[str, ...]) -> EndmemberParameters:
         """Parameters of the named endmembers, in the order given."""
         index = [self.names.index(n) for n in names]
-        kw = {k: getattr(self, k)[index] for k in self.__dataclass_fields__ if k != "names"}
+        kw = {k: getattr(self, k) for k in self.__dataclass_fields__ if k != "names"}
+        kw = {k: (v[index] if len(v) else v) for k, v in kw.items()}
         return EndmemberParameters(names=tuple(names), **kw)
 
 
@@ -152,28 +155,15 @@ def _solid_volume_terms(p, t, prm: EndmemberParameters):
     return gv, sv, -t * gtt, v, dv_dt, dv_dp
 
 
-def _liquid_gv(p, t, prm: EndmemberParameters):
-    """∫V dP from 0 to P at temperature T for liquids, and V (see module docstring)."""
-    k_t = prm.k0_pa * (1.0 - LIQUID_DK_DT_PER_K * (t - T_REF_K))
-    kpp = -prm.k0_prime / k_t
-    a, b, c = tait_constants(k_t, prm.k0_prime, kpp)
-    v1 = prm.v0 * np.exp(prm.alpha0 * (t - T_REF_K))
-    x = 1.0 + b * p
-    gv = v1 * (p * (1.0 - a) + a * (1.0 - x ** (1.0 - c)) / (b * (c - 1.0)))
-    v = v1 * (1.0 - a + a * x ** (-c))
-    dv_dp = -v1 * a * b * c * x ** (-c - 1.0)
-    return gv, v, dv_dp
-
-
-def _liquid_volume_terms(p, t, prm: EndmemberParameters, h: float = 0.5):
-    gv, v, dv_dp = _liquid_gv(p, t, prm)
-    gs = [_liquid_gv(p, t + k * h, prm) for k in (-2, -1, 1, 2)]
-    g_m2, g_m1, g_p1, g_p2 = (x[0] for x in gs)
-    v_m2, v_m1, v_p1, v_p2 = (x[1] for x in gs)
-    dg = (g_m2 - 8.0 * g_m1 + 8.0 * g_p1 - g_p2) / (12.0 * h)
-    d2g = (-g_m2 + 16.0 * g_m1 - 30.0 * gv + 16.0 * g_p1 - g_p2) / (12.0 * h * h)
-    dv_dt = (v_m2 - 8.0 * v_m1 + 8.0 * v_p1 - v_p2) / (12.0 * h)
-    return gv, -dg, -t * d2g, v, dv_dt, dv_dp
+def _liquid_volume_terms(p, t, prm: EndmemberParameters):
+    """∫V dP and its derivatives for liquids (analytic; thermo.liquid_eos)."""
+    table = prm.liquid_volume
+    if table.size == 0:
+        table = np.tile([1.0, 1.0, LIQUID_DK_DT_PER_K], (len(prm.names), 1))
+    terms = liquid_eos.tait_liquid(
+        p, t, prm.v0 * table[:, 0], prm.alpha0, prm.k0_pa * table[:, 1], prm.k0_prime, table[:, 2]
+    )
+    return terms.g, terms.s, terms.cp, terms.v, terms.dv_dt, terms.dv_dp
 
 
 def standard_state(params: EndmemberParameters, pressure_pa, temperature_k) -> StandardState:

@@ -457,8 +457,9 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         pure_idx = np.flatnonzero(~is_log)
         new_pure = amounts[pure_idx] + alpha * step[pure_idx]
         if pure_idx.size and new_pure.min() < 0.0:
-            ratio = -amounts[pure_idx] / (alpha * step[pure_idx])
-            k = int(np.argmin(np.where(new_pure < 0, ratio, np.inf)))
+            with np.errstate(divide="ignore", invalid="ignore"):
+                ratio = np.where(new_pure < 0, -amounts[pure_idx] / (alpha * step[pure_idx]), np.inf)
+            k = int(np.argmin(ratio))
             if ratio[k] < 0.5 and len(phases) > 1:
                 j = int(np.searchsorted(offs, pure_idx[k], side="right") - 1)
                 del phases[j]

@@ -1,0 +1,161 @@
+"""The minimizer finds the global minimum of G: against exhaustive grids and random probing.
+
+Checks required of a Gibbs energy minimizer (issue 3): the answer's G never exceeds an
+exhaustive fine-grid search, no absent phase has a negative driving force at the answer,
+mass balance closes to round-off, the phase rule holds, answers are deterministic and
+warm and cold starts agree.
+"""
+
+import itertools
+
+import numpy as np
+import pytest
+from scipy.optimize import linprog
+
+from thermo import solutions as sol
+from thermo.composition import bulk_from_oxides
+from thermo.dataset import load_dataset
+from thermo.errors import CompositionError, ConvergenceError, OutOfDomainError
+from thermo.equilibrium import prepare, solve_point
+from thermo.minimize import SolverOptions, _minimize_driving_force, equilibrate
+from thermo.phases import build_system
+
+DS = load_dataset()
+# Invented demo bulks (Kestrel IV magma ocean scenario, ../shared/DESIGN.md §5): not natural samples.
+DEMO_BULKS = {
+    "peridotite_like": {"SiO2": 45.0, "Al2O3": 4.4, "FeO": 8.1, "MgO": 38.0, "CaO": 3.5, "Na2O": 0.4},
+    "basalt_like": {"SiO2": 50.0, "Al2O3": 15.0, "FeO": 10.0, "MgO": 8.0, "CaO": 12.0, "Na2O": 3.0},
+    "anorthosite_like": {"SiO2": 46.0, "Al2O3": 30.0, "FeO": 2.0, "MgO": 2.0, "CaO": 17.0, "Na2O": 3.0},
+}
+
+
+def _total_gibbs(eq) -> float:
+    """Σ μ·b: total G of the equilibrium assemblage [J]."""
+    return float(eq.mu @ eq.bulk_mol)
+
+
+def _lattice(m: int, steps: int) -> np.ndarray:
+    pts = [c for c in itertools.product(range(steps + 1), repeat=m) if sum(c) == steps]
+    return np.array(pts, float) / steps
+
+
+def _grid_minimum(system, p, t, bulk, steps):
+    """Exhaustive search: LP over every pure phase and a fine lattice of every solution's compositions."""
+    from thermo.endmembers import standard_state
+
+    g0 = standard_state(system.params, p, t).g_j_per_mol
+    comps, gs = list(system.pure_stoich), list(g0[: system.n_pure])
+    for ph in system.solutions:
+        x = np.clip(_lattice(ph.model.size, steps), 1e-300, None)
+        gs += list(sol.molar_gibbs(ph.model, x, g0[ph.endmember_index], t, p))
+        comps += list(x @ ph.stoich)
+    res = linprog(np.array(gs), A_eq=np.array(comps).T, b_eq=bulk, bounds=(0, None), method="highs")
+    assert res.status == 0
+    return res.fun
+
+
+@pytest.mark.parametrize("t", [1500.0, 1800.0, 2100.0])
+def test_minimum_is_not_above_exhaustive_grid_search_in_mgo_feo_sio2(t):
+    """3 oxides, olivine + orthopyroxene + liquid + quartz: G(min) ≤ G(grid) + 1e-6 J."""
+    bulk = bulk_from_oxides({"MgO": 30.0, "FeO": 20.0, "SiO2": 50.0}, supported=DS.oxides).mol_per_kg * 0.01
+    system = build_system(DS, bulk, phases=["olivine", "orthopyroxene", "liquid", "quartz"])
+    b = bulk[system.component_index]
+    eq = equilibrate(system, 1e5, t, b)
+    assert _total_gibbs(eq) <= _grid_minimum(system, 1e5, t, b, steps=60) + 1e-6
+
+
+def _independent_driving_forces(eq, rng, samples=400):
+    """Smallest driving force of every solution from random compositions refined by Newton's method."""
+    from thermo.endmembers import standard_state
+
+    s = eq.system
+    g0 = standard_state(s.params, eq.pressure_pa, eq.temperature_k).g_j_per_mol
+    present = {ph.model for ph in eq.phases}
+    worst = {}
+    for ph in s.solutions:
+        x = rng.dirichlet(np.full(ph.model.size, 0.5), size=samples)
+        d = np.sum(x * (sol.chemical_potentials(ph.model, x, g0[ph.endmember_index], eq.temperature_k,
+                                                eq.pressure_pa) - ph.stoich @ eq.mu), axis=1)
+        starts = x[np.argsort(d)[:4]]
+        _, dv, _ = _minimize_driving_force(ph, starts, g0[ph.endmember_index], eq.temperature_k, eq.pressure_pa,
+                                           eq.mu, 60)
+        worst[ph.name] = (min(float(dv.min()), float(d.min())), ph.name in present)
+    for k, name in enumerate(s.pure_names):
+        worst[name] = (float(g0[k] - s.pure_stoich[k] @ eq.mu), name in present)
+    return worst
+
+
+def _random_states(n, seed):
+    rng = np.random.default_rng(seed)
+    names = list(DEMO_BULKS)
+    for i in range(n):
+        base = DEMO_BULKS[names[i % 3]]
+        yield ({k: v * rng.uniform(0.7, 1.3) for k, v in base.items()}, rng.uniform(0.0001, 25.0),
+               rng.uniform(1000.0, 2800.0))
+
+
+def test_no_absent_phase_has_negative_driving_force_on_500_random_states():
+    """≥ 500 random (P, T, bulk) across the NCFMAS domain: no phase below -1e-3 J/mol at the answer.
+
+    Also: mass balance closes to 1e-10 relative and the phase rule holds (phases ≤ components).
+    Present solutions are probed too (a negative value would be an undetected miscibility gap).
+    """
+    rng = np.random.default_rng(11)
+    failures, solved = [], 0
+    for oxides, p, t in _random_states(500, seed=5):
+        problem = prepare(oxides)
+        eq, _ = solve_point(problem, p, t)
+        solved += 1
+        assert eq.diagnostics["mass_balance_residual"] < 1e-10
+        assert len(eq.phases) <= len(problem.system.components)
+        for name, (d, _present) in _independent_driving_forces(eq, rng).items():
+            if d < -1e-3:
+                failures.append((name, round(d, 6), p, t))
+    assert solved == 500
+    assert not failures, failures[:10]
+
+
+def test_identical_inputs_give_identical_answers():
+    problem = prepare(DEMO_BULKS["basalt_like"])
+    first, _ = solve_point(problem, 1.0, 1500.0)
+    second, _ = solve_point(prepare(DEMO_BULKS["basalt_like"]), 1.0, 1500.0)
+    assert [p.name for p in first.phases] == [p.name for p in second.phases]
+    for a, b in zip(first.phases, second.phases, strict=True):
+        assert np.array_equal(a.amount_mol, b.amount_mol)
+    assert np.array_equal(first.mu, second.mu)
+
+
+@pytest.mark.parametrize(("bulk", "p", "t"), [("peridotite_like", 4.0, 1900.0), ("basalt_like", 1.0, 1450.0),
+                                              ("anorthosite_like", 0.0001, 1600.0)])
+def test_warm_and_cold_starts_agree(bulk, p, t):
+    problem = prepare(DEMO_BULKS[bulk])
+    warm_from, _ = solve_point(problem, p, t + 10.0)
+    warm, _ = solve_point(problem, p, t, warm=warm_from)
+    cold, _ = solve_point(problem, p, t)
+    assert sorted(x.name for x in warm.phases) == sorted(x.name for x in cold.phases)
+    assert _total_gibbs(warm) == pytest.approx(_total_gibbs(cold), rel=1e-10)
+    for ph in cold.phases:
+        other = next(x for x in warm.phases if x.name == ph.name)
+        assert other.amount_mol == pytest.approx(ph.amount_mol, rel=1e-5, abs=1e-9)
+
+
+def test_bulk_outside_the_candidate_phases_is_refused_with_the_field_named():
+    with pytest.raises(CompositionError) as err:
+        prepare({"MgO": 50.0, "SiO2": 50.0}, phases=["quartz"])
+    assert err.value.field == "composition.oxides"
+
+
+def test_pressure_outside_the_validity_domain_is_refused():
+    problem = prepare(DEMO_BULKS["basalt_like"])
+    with pytest.raises(OutOfDomainError) as err:
+        solve_point(problem, 40.0, 2000.0)
+    assert err.value.field == "pressure_gpa"
+
+
+def test_non_convergence_raises_with_diagnostics_instead_of_returning_a_guess():
+    problem = prepare(DEMO_BULKS["peridotite_like"])
+    options = SolverOptions(max_outer=1, max_setbacks=0, driving_force_tol=1e-12, check_tol=1e-12)
+    with pytest.raises(ConvergenceError) as err:
+        solve_point(problem, 0.0001, 1600.0, options=options)
+    assert err.value.diagnostics["outer_iterations"] == 1
+    assert "g_evaluations" in err.value.diagnostics
