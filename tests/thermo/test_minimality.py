@@ -15,8 +15,8 @@ from scipy.optimize import linprog
 from thermo import solutions as sol
 from thermo.composition import bulk_from_oxides
 from thermo.dataset import load_dataset
-from thermo.errors import CompositionError, ConvergenceError, OutOfDomainError
 from thermo.equilibrium import prepare, solve_point
+from thermo.errors import CompositionError, ConvergenceError, OutOfDomainError
 from thermo.minimize import SolverOptions, _minimize_driving_force, equilibrate
 from thermo.phases import build_system
 
