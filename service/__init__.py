@@ -12,7 +12,7 @@ from typing import Any
 from flask import Flask
 from flask.json.provider import DefaultJSONProvider
 
-from service import datasets, health
+from service import datasets, equilibrium, health, infrastructure
 from service.errors import register_error_handlers
 from service.negotiation import check_request
 
@@ -52,6 +52,8 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     app.config.update(config or {})
     app.before_request(check_request)
     register_error_handlers(app)
+    infrastructure.init_app(app)  # store, API keys, quotas, jobs and cache, request ids, metrics
     app.register_blueprint(health.blueprint, url_prefix="/v1")
     app.register_blueprint(datasets.blueprint, url_prefix="/v1")
+    app.register_blueprint(equilibrium.blueprint, url_prefix="/v1")
     return app

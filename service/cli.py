@@ -1,4 +1,4 @@
-"""Command line of heatpath: ``heatpath serve`` and ``heatpath datasets``.
+"""Command line of heatpath: ``heatpath serve``, ``heatpath datasets``, ``heatpath keys``, ``heatpath worker``.
 
 ``serve`` starts gunicorn with :mod:`service.gunicorn_conf`; ``datasets``
 lists the shipped datasets without a server.
@@ -69,6 +69,95 @@ def list_datasets(args: argparse.Namespace) -> int:
     return 0
 
 
+def _key_store():
+    from service.settings import resolve
+    from service.store import open_store
+
+    return open_store(resolve()["HEATPATH_STORE"])
+
+
+def keys_create(args: argparse.Namespace) -> int:
+    """Create an API key and print it once (only a salted hash is stored)."""
+    from service.auth import create_key
+
+    try:
+        key_id, key = create_key(_key_store(), args.owner, args.requests_per_minute, args.compute_seconds_per_day)
+    except ValueError as exc:
+        raise SystemExit(f"heatpath keys create: {exc}") from None
+    if args.json:
+        print(json.dumps({"id": key_id, "owner": args.owner.strip(), "key": key}))
+    else:
+        print(f"created key {key_id} for {args.owner.strip()}\n\n    {key}\n\n"
+              "Give it to its owner now: it is not stored and cannot be shown again.")
+    return 0
+
+
+def keys_list(args: argparse.Namespace) -> int:
+    """List keys (id, owner, limits, state); never the keys themselves."""
+    import time
+
+    from service.auth import list_keys
+
+    rows = list_keys(_key_store())
+    if args.json:
+        print(json.dumps(rows, indent=2))
+        return 0
+    for row in rows:
+        revoked = row["revoked_at"]
+        state = "revoked " + time.strftime("%Y-%m-%d", time.gmtime(revoked)) if revoked else "active"
+        rpm, cps = row["requests_per_minute"] or "default", row["compute_seconds_per_day"] or "default"
+        limits = f"{rpm} req/min, {cps} s/day"
+        print(f"{row['id']}  {state:18}  {limits:32}  {row['owner']}")
+    return 0
+
+
+def keys_revoke(args: argparse.Namespace) -> int:
+    """Revoke a key by its id; it is refused from the next request on."""
+    from service.auth import revoke_key
+
+    if not revoke_key(_key_store(), args.key_id):
+        print(f"heatpath keys revoke: no active key {args.key_id!r}", file=sys.stderr)
+        return 1
+    print(f"revoked key {args.key_id}")
+    return 0
+
+
+def run_job_worker(args: argparse.Namespace) -> int:
+    """Run background jobs from the configured queue."""
+    from service.worker import run_worker
+
+    return run_worker(args.threads, periodic=not args.no_periodic)
+
+
+def add_team_commands(sub: argparse._SubParsersAction) -> None:
+    """``heatpath keys create|list|revoke`` and ``heatpath worker``."""
+    keys = sub.add_parser("keys", help="manage API keys (in the store named by $HEATPATH_STORE)",
+                          description="Create, list and revoke API keys. Only salted hashes are stored; "
+                                      "a new key is printed once. The store is $HEATPATH_STORE "
+                                      "(default var/heatpath.sqlite3).")
+    ksub = keys.add_subparsers(dest="keys_command", required=True, metavar="ACTION")
+    create = ksub.add_parser("create", help="create a key for an owner and print it once")
+    create.add_argument("--owner", required=True, help='who holds the key, e.g. "A. Person, Some Institute"')
+    create.add_argument("--requests-per-minute", type=int, metavar="N",
+                        help="request allowance (default: service-wide)")
+    create.add_argument("--compute-seconds-per-day", type=float, metavar="S",
+                        help="solver time allowance per UTC day (default: service-wide)")
+    create.add_argument("--json", action="store_true", help="print JSON")
+    create.set_defaults(func=keys_create)
+    lst = ksub.add_parser("list", help="list keys with owner, limits and state")
+    lst.add_argument("--json", action="store_true", help="print JSON")
+    lst.set_defaults(func=keys_list)
+    revoke = ksub.add_parser("revoke", help="revoke a key by its id")
+    revoke.add_argument("key_id", help="the key's id (second part of hpk_<id>_...)")
+    revoke.set_defaults(func=keys_revoke)
+    worker = sub.add_parser("worker", help="run background jobs (for job workers on other machines)",
+                            description="Run background jobs from the queue named by $HEATPATH_QUEUE / "
+                                        "$HEATPATH_STORE. 'heatpath serve' starts $HEATPATH_JOB_WORKERS of these.")
+    worker.add_argument("--threads", type=int, default=1, metavar="N", help="jobs run at once (default 1)")
+    worker.add_argument("--no-periodic", action="store_true", help="leave the once-a-minute housekeeping to others")
+    worker.set_defaults(func=run_job_worker)
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``heatpath`` command."""
     parser = argparse.ArgumentParser(
@@ -92,6 +181,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     dsl.add_argument("--json", action="store_true", help="print JSON instead of a table")
     dsl.set_defaults(func=list_datasets)
+    add_team_commands(sub)
     return parser
 
 

@@ -15,7 +15,10 @@ from marshmallow import RAISE, Schema, ValidationError, fields, validate, valida
 from werkzeug.exceptions import BadRequest
 
 from service.errors import ProblemError
+from service.jobs import JobOptions
 from thermo.composition import BASES, KNOWN_OXIDES
+from thermo.dataset import DEFAULT_DATASET_ID, available_datasets, load_dataset
+from thermo.phases import default_phase_names
 
 
 class JSONNumber(fields.Float):
@@ -133,4 +136,81 @@ def load_json(schema: Schema) -> dict[str, Any]:
     return schema.load(body)
 
 
-__all__ = ["CompositionSchema", "JSONNumber", "StatePointQuery", "load_json", "load_query", "quantity"]
+def body_quantity(description: str) -> JSONNumber:
+    """A required finite JSON number in a request body, with messages that state its unit."""
+    return JSONNumber(
+        required=True,
+        metadata={"description": description},
+        error_messages={
+            "required": f"is required ({description})",
+            "null": f"must be a number, not null ({description})",
+            "invalid": f"must be a JSON number ({description})",
+            "special": f"must be a finite number ({description})",
+        },
+    )
+
+
+def _known_dataset(dataset_id: str) -> None:
+    ids = available_datasets()
+    if dataset_id not in ids:
+        raise ValidationError(f"unknown dataset {dataset_id!r}; available: {', '.join(ids)} (see /v1/datasets)")
+
+
+class EquilibriumRequest(JobOptions):  # JobOptions: "async": true → a background job
+    """Body of ``POST /v1/equilibrium``: a composition at one pressure and temperature.
+
+    ``dataset`` defaults to :data:`thermo.dataset.DEFAULT_DATASET_ID`; ``phases``
+    (candidate phases: solution names or endmember names of the dataset)
+    defaults to the dataset's own list and is returned as ``None`` when absent.
+    Pressure and temperature are checked against the chosen dataset's validity
+    ranges (inclusive), and every phase name against the dataset, so that all
+    bad fields are reported at once.
+    """
+
+    class Meta:
+        unknown = RAISE
+
+    error_messages: ClassVar[dict[str, str]] = {
+        "unknown": "unknown field; allowed: composition, pressure_gpa, temperature_k, dataset, phases, async",
+    }
+    composition = fields.Nested(CompositionSchema, required=True,
+                                error_messages={"required": "is required (oxide amounts and their basis)"})
+    pressure_gpa = body_quantity("pressure in GPa")
+    temperature_k = body_quantity("temperature in K")
+    dataset = fields.String(load_default=DEFAULT_DATASET_ID, validate=_known_dataset)
+    phases = fields.List(
+        fields.String(validate=validate.Length(min=1, error="must be a non-empty phase name")),
+        load_default=None,
+        validate=validate.Length(min=1, error="must list at least one phase (omit it to use the dataset's list)"),
+    )
+
+    @validates_schema(skip_on_field_errors=False)
+    def _against_dataset(self, data: dict[str, Any], **kwargs: Any) -> None:
+        dataset_id = data.get("dataset")
+        if dataset_id not in available_datasets():
+            return  # reported by the field validator
+        ds = load_dataset(dataset_id)
+        problems: dict[str, Any] = {}
+        for key, (lo, hi), unit in (("pressure_gpa", ds.pressure_range_gpa, "GPa"),
+                                    ("temperature_k", ds.temperature_range_k, "K")):
+            if key in data and not lo <= data[key] <= hi:
+                problems[key] = [f"{data[key]:g} {unit} is outside the validity range of dataset {ds.id}: "
+                                 f"[{lo:g}, {hi:g}] {unit}"]
+        known = set(default_phase_names(ds)) | set(ds.endmembers.names)
+        bad: dict[int, list[str]] = {}
+        for i, name in enumerate(data.get("phases") or []):
+            if name not in known:
+                bad[i] = [f"unknown phase {name!r}: not a solution or endmember of dataset {ds.id} "
+                          f"(solutions and default phases: {', '.join(default_phase_names(ds))})"]
+            elif name in data["phases"][:i]:
+                bad[i] = [f"phase {name!r} is listed more than once"]
+        if bad:
+            problems["phases"] = bad
+        if problems:
+            raise ValidationError(problems)
+
+
+__all__ = [
+    "CompositionSchema", "EquilibriumRequest", "JSONNumber", "StatePointQuery", "body_quantity", "load_json",
+    "load_query", "quantity",
+]
