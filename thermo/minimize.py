@@ -281,9 +281,10 @@ class _Solver:
             pool = self.pool[si]
             d = _driving_force(ph, pool, self.g0_of(ph), self.t, self.p, mu)
             self.evals += len(pool)
-            order = np.argsort(d)[: self.opt.starts]
+            order = np.argsort(d)[: 1 if si in self.probes else self.opt.starts]
             starts, d_starts = pool[order], d[order]
             if si in self.probes:
+                # warm check: last step's local minimizers are the main starts
                 dp = _driving_force(ph, self.probes[si], self.g0_of(ph), self.t, self.p, mu)
                 self.evals += len(dp)
                 starts, d_starts = np.vstack([self.probes[si], starts]), np.concatenate([dp, d_starts])
@@ -498,8 +499,15 @@ def _can_unmix(model, t, p) -> bool:
 
 
 def _probes(found) -> dict:
-    """Best composition of each solution from a check, kept to seed the next (warm) check."""
-    return {si: x[[int(np.argmin(dv))]] for si, (x, dv) in enumerate(found)}
+    """Distinct local minimizers of each solution's driving force from a check (seeds for the next one)."""
+    out = {}
+    for si, (x, dv) in enumerate(found):
+        keep = []
+        for j in np.argsort(dv):
+            if all(np.abs(x[j] - x[k]).max() > 1e-3 for k in keep):
+                keep.append(j)
+        out[si] = x[keep[:4]]
+    return out
 
 
 def _absent_min(solver, phases, found, pure_d):

@@ -101,6 +101,7 @@ def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
     return g, gq, gqq, s, ds
 
 
+_GRID_ELEMENTS = 200_000  # grid-times-points block size of the order-parameter search
 _Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
 
 
@@ -115,11 +116,15 @@ def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iter
     )
     best = np.full(p.shape, np.inf)
     idx = np.zeros(p.shape, int)
-    for k, qk in enumerate(_Q_GRID):  # running minimum: memory stays O(points)
-        gk = _bw_g(qk, p, t, *args)[0]
+    chunk = max(1, _GRID_ELEMENTS // max(p.size, 1))  # grid values per block: memory stays bounded
+    for start in range(0, _Q_GRID.size, chunk):
+        qs = _Q_GRID[start: start + chunk].reshape((-1,) + (1,) * p.ndim)
+        g = _bw_g(qs, p, t, *args)[0]
+        k = np.argmin(g, axis=0)
+        gk = np.take_along_axis(g, k[None], axis=0)[0]
         better = gk < best
         best = np.where(better, gk, best)
-        idx = np.where(better, k, idx)
+        idx = np.where(better, start + k, idx)
     lo = _Q_GRID[np.clip(idx - 1, 0, None)]
     hi = _Q_GRID[np.clip(idx + 1, None, _Q_GRID.size - 1)]
     q = _Q_GRID[idx]

@@ -159,3 +159,14 @@ def test_non_convergence_raises_with_diagnostics_instead_of_returning_a_guess():
         solve_point(problem, 0.0001, 1600.0, options=options)
     assert err.value.diagnostics["outer_iterations"] == 1
     assert "g_evaluations" in err.value.diagnostics
+
+
+def test_warm_started_cooling_sequence_agrees_with_cold_solves_at_every_step():
+    """Warm starts must not follow a metastable branch: same assemblage and G as a cold solve."""
+    problem = prepare(DEMO_BULKS["peridotite_like"])
+    warm = None
+    for t in np.arange(1440.0, 1340.0, -5.0):
+        warm, _ = solve_point(problem, 4.0, t, warm=warm)
+        cold, _ = solve_point(problem, 4.0, t)
+        assert sorted(p.name for p in warm.phases) == sorted(p.name for p in cold.phases), t
+        assert _total_gibbs(warm) == pytest.approx(_total_gibbs(cold), rel=1e-11, abs=1e-4)
