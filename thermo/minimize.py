@@ -53,6 +53,7 @@ class SolverOptions:
     warm_skip_rt: float = 1.0  # same, when a warm start supplies last step's best compositions
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
     max_outer: int = 40
+    prune_rt: float = 4.0  # after the first programme, drop columns with reduced cost above this x RT
     max_setbacks: int = 3  # failed polish/refine rounds before falling back to column generation alone
     newton_iter: int = 40
     polish_iter: int = 80
@@ -209,6 +210,14 @@ class _Columns:
         self.comp.append(np.asarray(comp, float))
         self.g.append(float(g))
         self.owner.append(owner)
+
+    def prune(self, mu, lam, limit: float) -> np.ndarray:
+        """Drop columns whose reduced cost G - a·μ exceeds ``limit`` (never basic ones); returns kept λ."""
+        reduced = np.array(self.g) - np.array(self.comp) @ mu
+        keep = (reduced <= limit) | (lam > 0.0)
+        for name in ("comp", "g", "owner"):
+            setattr(self, name, [v for v, k in zip(getattr(self, name), keep, strict=True) if k])
+        return lam[keep]
 
 
 #: Tight feasibility tolerances: reduced costs (driving forces) must resolve ~1e-4 J/mol on scaled objectives.
@@ -569,6 +578,8 @@ def equilibrate(
         diag["outer_iterations"] = outer + 1
         lp_only = setbacks >= opt.max_setbacks
         lam, mu = _solve_lp(cols, solver.bulk, mu)
+        if outer == 0:  # far-from-stable columns only slow the later programmes down
+            lam = cols.prune(mu, lam, opt.prune_rt * R * solver.t)
         tol = opt.check_tol if lp_only else opt.driving_force_tol
         found = solver.best_driving_forces(
             mu, iters=opt.newton_iter if lp_only else opt.colgen_newton_iter,
