@@ -64,7 +64,7 @@ def diagnostics_json(diagnostics: Mapping[str, Any]) -> dict[str, Any]:
         "gibbs_evaluation_count": int(diagnostics["g_evaluations"]),
         "polish_failure_count": int(diagnostics.get("polish_failures", 0)),
         # The core's key says "largest" but holds the minimum over absent phases (see _absent_min).
-        "min_absent_driving_force_j_per_mol": float(diagnostics["largest_absent_driving_force_j_per_mol"]),
+        "min_absent_driving_force_j_per_mol": float(diagnostics["min_absent_driving_force_j_per_mol"]),
         "mass_balance_relative_residual": float(diagnostics["mass_balance_residual"]),
         "warm_start_used": bool(diagnostics["warm_start_used"]),
         "solve_time_s": float(diagnostics["wall_time_s"]),

@@ -688,7 +688,7 @@ def _finish(solver, phases, mu, found, pure_d, diag, t0):
     ) - solver.bulk
     diag.update(
         g_evaluations=solver.evals,
-        largest_absent_driving_force_j_per_mol=_absent_min(solver, phases, found, pure_d),
+        min_absent_driving_force_j_per_mol=_absent_min(solver, phases, found, pure_d),
         mass_balance_residual=float(np.abs(mass).max() / np.abs(solver.bulk).max()),
         wall_time_s=time.perf_counter() - t0,
     )

@@ -131,7 +131,7 @@ def expected_from_core(a: Assemblage) -> dict:
         "diagnostics": {
             "outer_iteration_count": d["outer_iterations"], "gibbs_evaluation_count": d["g_evaluations"],
             "polish_failure_count": d.get("polish_failures", 0),
-            "min_absent_driving_force_j_per_mol": d["largest_absent_driving_force_j_per_mol"],
+            "min_absent_driving_force_j_per_mol": d["min_absent_driving_force_j_per_mol"],
             "mass_balance_relative_residual": d["mass_balance_residual"],
             "warm_start_used": d["warm_start_used"],
         },
