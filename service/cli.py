@@ -1,7 +1,9 @@
-"""Command line of heatpath: ``heatpath serve``, ``heatpath datasets``, ``heatpath keys``, ``heatpath worker``.
+"""Command line of heatpath: ``heatpath serve``, ``datasets``, ``point``, ``cool``, ``isentrope``, ``table``,
+``keys``, ``worker``.
 
 ``serve`` starts gunicorn with :mod:`service.gunicorn_conf`; ``datasets``
-lists the shipped datasets without a server.
+lists the datasets (shipped ones without a server, or a server's with
+``--url``); the computing commands live in :mod:`service.commands`.
 """
 
 from __future__ import annotations
@@ -14,6 +16,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
+from service.commands import add_compute_commands
 from service.provenance import code_version
 
 GUNICORN_CONF = Path(__file__).resolve().with_name("gunicorn_conf.py")
@@ -55,7 +58,18 @@ def list_datasets(args: argparse.Namespace) -> int:
     from service.datasets import dataset_summary
     from thermo.dataset import available_datasets, load_dataset
 
-    rows = [dataset_summary(load_dataset(i)) for i in available_datasets()]
+    url = args.url or os.environ.get("HEATPATH_URL")
+    if url:
+        from service.client import HeatpathClient, HeatpathClientError
+
+        try:
+            with HeatpathClient(url, args.key) as hp:
+                rows = hp.datasets()
+        except HeatpathClientError as exc:
+            print(f"heatpath datasets: {exc}", file=sys.stderr)
+            return 1
+    else:
+        rows = [dataset_summary(load_dataset(i)) for i in available_datasets()]
     if args.json:
         print(json.dumps(rows, indent=2))
         return 0
@@ -164,6 +178,8 @@ def build_parser() -> argparse.ArgumentParser:
         prog="heatpath",
         description="Thermodynamics of crystallizing silicate melts, served over HTTP. "
                     "Results are model estimates within each dataset's stated validity domain.",
+        epilog="'heatpath COMMAND --help' tells more. The computing commands (point, cool, isentrope, table) "
+               "ask the server at --url or $HEATPATH_URL, or compute in this process when neither is given.",
     )
     parser.add_argument("--version", action="version", version=f"heatpath {code_version()}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
@@ -180,7 +196,10 @@ def build_parser() -> argparse.ArgumentParser:
         description="List the shipped datasets: components, endmember count, validity domain, checksum.",
     )
     dsl.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    dsl.add_argument("--url", metavar="URL", help="list a server's datasets instead (default: $HEATPATH_URL)")
+    dsl.add_argument("--key", metavar="KEY", help="API key for --url (default: $HEATPATH_KEY)")
     dsl.set_defaults(func=list_datasets)
+    add_compute_commands(sub)
     add_team_commands(sub)
     return parser
 

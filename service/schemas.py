@@ -112,8 +112,14 @@ class CompositionSchema(Schema):
     @validates_schema
     def _positive_total(self, data: dict[str, Any], **kwargs: Any) -> None:
         amounts = data.get("oxides")
-        if amounts is not None and not (amounts and math.fsum(amounts.values()) > 0):
+        if amounts is None:
+            return
+        total = sum(amounts.values())  # a plain float sum: inf (not an exception) when the amounts overflow
+        if not total > 0:
             raise ValidationError({"oxides": ["must contain at least one oxide with a positive amount"]})
+        if not math.isfinite(total):
+            raise ValidationError({"oxides": ["the amounts are too large to add up to a finite total; "
+                                              "give them on a percent scale"]})
 
 
 def load_query(schema: Schema) -> dict[str, Any]:

@@ -8,6 +8,7 @@ import pytest
 import yaml
 
 from service import create_app
+from tests.service.live_server import live_server  # noqa: F401  (session fixture: gunicorn on loopback)
 
 REPO = Path(__file__).resolve().parents[2]
 
