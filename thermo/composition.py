@@ -58,7 +58,7 @@ class Bulk:
     def mol_percent(self) -> dict[str, float]:
         """Oxide mole percentages summing to 100."""
         total = float(np.sum(self.mol_per_kg))
-        return {ox: 100.0 * n / total for ox, n in zip(self.oxides, self.mol_per_kg, strict=True)}
+        return {ox: 100.0 * (n / total) for ox, n in zip(self.oxides, self.mol_per_kg, strict=True)}
 
 
 def _check_amounts(oxides: Mapping[str, float]) -> None:
@@ -120,6 +120,8 @@ def bulk_from_oxides(
     total = amounts.sum()
     if not total > 0.0:
         raise CompositionError("composition.oxides", "total of the supported oxides must be positive")
+    if not np.isfinite(total):
+        raise CompositionError("composition.oxides", "total of the oxide amounts is too large to represent")
     raw_total = sum(float(v) for v in oxides.values())
     if abs(raw_total - 100.0) > 0.5:
         warnings.append(f"oxide amounts summed to {raw_total:.4g}; normalised to 100 {basis.replace('_', ' ')}")
