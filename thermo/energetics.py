@@ -84,6 +84,7 @@ def solve_state(
     temperature_k: float,
     warm: State | None = None,
     options: SolverOptions | None = None,
+    verify: bool = True,
 ) -> State:
     """Equilibrium of ``problem``'s bulk at (P [Pa], T [K]), warm-started from ``warm`` when it fits.
 
@@ -91,7 +92,8 @@ def solve_state(
     Raises :class:`ConvergenceError` or :class:`CompositionError` from the minimizer.
     """
     w = warm.eq if warm is not None and warm.eq.system is problem.system else None
-    eq = equilibrate(problem.system, pressure_pa, temperature_k, problem.bulk_mol, warm=w, options=options)
+    eq = equilibrate(problem.system, pressure_pa, temperature_k, problem.bulk_mol, warm=w, options=options,
+                     verify=verify)
     return State(eq, assemblage_properties(eq))
 
 
@@ -205,7 +207,9 @@ def _derivatives_with_step(problem: Problem, state: State, delta_k: float) -> De
 
     def at(k: int) -> State:
         if k not in cache:
-            cache[k] = solve_state(problem, state.pressure_pa, state.temperature_k + k * delta_k, warm=state)
+            # the state's own branch (assemblage held, re-polished): its derivative is the path's on this side
+            cache[k] = solve_state(problem, state.pressure_pa, state.temperature_k + k * delta_k, warm=state,
+                                   verify=False)
         return cache[k]
 
     for name, (offsets, weights, weights2) in _STENCILS.items():

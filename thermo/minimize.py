@@ -536,8 +536,14 @@ def equilibrate(
     bulk_mol,
     warm: Equilibrium | None = None,
     options: SolverOptions | None = None,
+    verify: bool = True,
 ) -> Equilibrium:
     """Stable assemblage of minimum Gibbs energy at fixed P, T and bulk composition.
+
+    With ``verify=False`` and a warm start, the warm assemblage is only re-polished
+    (phases that vanish are dropped, none are added, no minimality check): the
+    equilibrium constrained to that assemblage, used for derivatives along one branch
+    (``diagnostics["verified"]`` is then False). If the polish fails, a full solve follows.
 
     Parameters
     ----------
@@ -562,6 +568,13 @@ def equilibrate(
     t0 = time.perf_counter()
     solver = _Solver(system, float(pressure_pa), float(temperature_k), bulk_mol, opt)
     diag = {"outer_iterations": 0, "warm_start_used": False}
+    if warm is not None and warm.system is system and not verify:
+        polished = _polish(solver, [PhaseState(p.name, p.model, p.solution_index, p.amount_mol.copy())
+                                    for p in warm.phases], warm.mu)
+        if polished is not None:
+            diag.update(warm_start_used=True, polished=True, verified=False)
+            pure_d = solver.g0[: system.n_pure] - system.pure_stoich @ polished[1]
+            return _finish(solver, *polished, [], pure_d, diag, t0)
     if warm is not None and warm.system is system:
         result = _try_warm(solver, warm)
         solver.skip_check_rt = opt.check_skip_rt
