@@ -233,6 +233,57 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
     return replace(params, liquid_volume=out)
 
 
+# --- liquid calibration (liquid_calibration.toml) ----------------------------------------------------------------
+def apply_liquid_calibration(
+    params: EndmemberParameters, extra: dict[str, Any]
+) -> tuple[EndmemberParameters, dict[str, Any]]:
+    """Apply the fitted liquid parameters of ``liquid_calibration.toml`` (written by calibration/fit_liquid.py).
+
+    The file holds shifts of liquid endmember H0 and S0 (``[[endmember_adjustments]]``:
+    ``dh0_j_per_mol``, ``ds0_j_per_mol_k``), the liquid's mixing-unit counts
+    (``[mixing_units.<species>] value``), whether the van Laar asymmetry equals those counts
+    (``asymmetry = "units"``) and its interaction energies (``[[interactions]]``: ``pair``,
+    ``w_h_j_per_mol``, ``w_s_j_per_mol_k``, ``w_v_m3_per_mol``). The shifts change the
+    endmember parameters; the rest replaces the corresponding keys of the ``[solution.<name>]``
+    table of solutions.toml. Without the file nothing changes.
+    """
+    cal = extra.get("liquid_calibration")
+    if not cal:
+        return params, extra
+    where = "liquid_calibration.toml"
+    name = cal.get("solution", "liquid")
+    solutions = {k: dict(v) for k, v in extra.get("solutions", {}).get("solution", {}).items()}
+    if name not in solutions:
+        raise DatasetError(f"{where}: key 'solution' names {name!r}, which solutions.toml does not define")
+    spec = solutions[name]
+    species = list(spec.get("endmembers", []))
+    h0, s0 = params.h0.copy(), params.s0.copy()
+    for adj in cal.get("endmember_adjustments", []):
+        em = adj.get("endmember")
+        if em not in params.names or not params.is_liquid[params.names.index(em)]:
+            raise DatasetError(f"{where}: endmember_adjustments: {em!r} is not a liquid endmember of endmembers.csv")
+        values = (float(adj.get("dh0_j_per_mol", 0.0)), float(adj.get("ds0_j_per_mol_k", 0.0)))
+        if not all(math.isfinite(v) for v in values) or not adj.get("fitted_to"):
+            raise DatasetError(f"{where}: endmember_adjustments of {em}: finite shifts and 'fitted_to' are required")
+        h0[params.names.index(em)] += values[0]
+        s0[params.names.index(em)] += values[1]
+    units = {k: float(v["value"]) for k, v in cal.get("mixing_units", {}).items()}
+    if any(k not in species for k in units) or not all(math.isfinite(v) and v > 0 for v in units.values()):
+        raise DatasetError(f"{where}: mixing_units must name species of [{name}] with positive values")
+    if units:
+        spec["mixing_units"] = units
+        spec["asymmetry"] = dict(units) if cal.get("asymmetry") == "units" else {}
+    if "interactions" in cal:
+        for inter in cal["interactions"]:
+            if any(e not in species for e in inter.get("pair", [])) or not inter.get("fitted_to"):
+                raise DatasetError(f"{where}: interaction {inter.get('pair')}: unknown species or no 'fitted_to'")
+        keys = ("pair", "w_h_j_per_mol", "w_s_j_per_mol_k", "w_v_m3_per_mol")
+        spec["interactions"] = [{k: inter[k] for k in keys if k in inter} for inter in cal["interactions"]]
+    solutions[name] = spec
+    extra = {**extra, "solutions": {**extra["solutions"], "solution": solutions}}
+    return replace(params, h0=h0, s0=s0), extra
+
+
 def load_dataset_dir(directory: Path) -> Dataset:
     """Load and validate the dataset stored in ``directory``."""
     man = _manifest(directory)
@@ -247,6 +298,7 @@ def load_dataset_dir(directory: Path) -> Dataset:
             except tomllib.TOMLDecodeError as exc:
                 raise DatasetError(f"{name}: not valid TOML: {exc}") from None
     params = apply_liquid_volumes(params, extra.get("liquid_volumes"))
+    params, extra = apply_liquid_calibration(params, extra)
     return Dataset(
         id=man["id"], title=man["title"], checksum=checksum(directory, files), oxides=oxides,
         pressure_range_gpa=tuple(man["validity"]["pressure_gpa"]),

@@ -34,7 +34,7 @@ from functools import lru_cache
 
 import numpy as np
 from scipy.constants import R
-from scipy.optimize import linprog
+from scipy.optimize import linprog, nnls
 
 from thermo import solutions as sol
 from thermo.endmembers import StandardState, standard_state
@@ -158,7 +158,7 @@ def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6):
         d_old = d_val[idx]
         # rows whose quadratic model cannot bring D below zero and that are already positive stop early
         predicted = d_old + 0.5 * np.sum((mu - target) * step, axis=1)
-        hopeless = (d_old > 1.0) & (predicted > 0.5 * d_old)
+        hopeless = (d_old > 2.0 * R * t) & (predicted > 0.5 * d_old)
         live[idx[hopeless]] = False
         pending = ~done & ~hopeless
         trial = xs.copy()
@@ -181,6 +181,20 @@ def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6):
         x[idx] = trial
         d_val[idx] = d_new
     return x, d_val, evals
+
+
+def _bulk_like(phase: SolutionPhase, bulk) -> np.ndarray:
+    """Compositions of a solution closest to the bulk's oxide proportions, and blends of them with the centre.
+
+    Near a liquidus the liquid is close to the bulk; these starts find it even where mixing
+    terms make the liquid's G surface non-convex.
+    """
+    x, _ = nnls(phase.stoich.T, bulk / bulk.sum())
+    if not x.sum() > 0:
+        return np.zeros((0, phase.model.size))
+    x = x / x.sum()
+    m = phase.model.size
+    return np.array([np.clip(f * x + (1 - f) / m, 1e-6, None) for f in (0.999, 0.9, 0.6)])
 
 
 @lru_cache(maxsize=64)
@@ -214,7 +228,9 @@ class _Columns:
     def prune(self, mu, lam, limit: float) -> np.ndarray:
         """Drop columns whose reduced cost G - a·μ exceeds ``limit`` (never basic ones); returns kept λ."""
         reduced = np.array(self.g) - np.array(self.comp) @ mu
-        keep = (reduced <= limit) | (lam > 0.0)
+        # pure phases and exact endmember columns always stay: they keep bulks on a join representable
+        anchor = np.array([o[0] == -1 or np.count_nonzero(o[1]) == 1 for o in self.owner])
+        keep = (reduced <= limit) | (lam > 0.0) | anchor
         for name in ("comp", "g", "owner"):
             setattr(self, name, [v for v, k in zip(getattr(self, name), keep, strict=True) if k])
         return lam[keep]
@@ -229,6 +245,10 @@ def _solve_lp(cols: _Columns, bulk, mu_ref):
     g = np.array(cols.g) - mu_ref @ a
     scale = max(1.0, float(np.abs(g).max()))
     res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method="highs", options=_HIGHS_OPTIONS)
+    for method in ("highs-ds", "highs-ipm"):  # degenerate programmes (bulks on a join): other HiGHS solvers
+        if res.status == 0:
+            break
+        res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method=method)
     if res.status == 2:
         raise CompositionError(
             "composition.oxides",
@@ -247,7 +267,7 @@ class _Solver:
         self.std = standard_state(system.params, p, t)
         self.g0 = self.std.g_j_per_mol
         self.evals = 0
-        self.pool = [_simplex_points(ph.model.size) for ph in system.solutions]
+        self.pool = [np.vstack([_simplex_points(ph.model.size), _bulk_like(ph, self.bulk)]) for ph in system.solutions]
         self.probes: dict = {}
         self.skip_check_rt = options.check_skip_rt
 
@@ -290,7 +310,10 @@ class _Solver:
             pool = self.pool[si]
             d = _driving_force(ph, pool, self.g0_of(ph), self.t, self.p, mu)
             self.evals += len(pool)
-            order = np.argsort(d)[: 1 if si in self.probes else self.opt.starts]
+            if si in self.probes:
+                order = np.argsort(d)[:1]
+            else:  # cold: the best sampled points and every (inset) vertex, so no corner is left unexplored
+                order = np.unique(np.concatenate([np.argsort(d)[: self.opt.starts], np.arange(ph.model.size)]))
             starts, d_starts = pool[order], d[order]
             if si in self.probes:
                 # warm check: last step's local minimizers are the main starts
@@ -367,16 +390,33 @@ def _name_instances(phases):
 
 
 # --------------------------------------------------------------- polish stage
-def _polish_system(solver: _Solver, phases: list[PhaseState], z):
-    """Residuals and Jacobian of the equilibrium conditions for unknowns z = (amounts, μ_reduced)."""
-    s, basis = solver.s, solver.s.basis
+def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
+    """Orthonormal basis (c, r) of the compositions the present phases span."""
+    rows = [solver.s.pure_stoich[[solver.s.pure_names.index(p.model)]] if p.solution_index < 0
+            else solver.s.solutions[p.solution_index].stoich for p in phases]
+    return _span_rows(np.vstack(rows))
+
+
+def _span_rows(a: np.ndarray) -> np.ndarray:
+    _, sv, vt = np.linalg.svd(a, full_matrices=False)
+    return vt[: int(np.sum(sv > 1e-10 * sv.max()))].T
+
+
+def _polish_system(solver: _Solver, phases: list[PhaseState], z, basis, mu_perp):
+    """Residuals and Jacobian of the equilibrium conditions for unknowns z = (amounts, μ_reduced).
+
+    μ = μ_perp + basis·μ_reduced: only the chemical potentials the present phases can fix are
+    unknowns; the rest (μ_perp) keeps the linear programme's values, which certify minimality
+    when the assemblage spans fewer components than the system.
+    """
+    s = solver.s
     c = basis.shape[1]
     sizes = [len(ph.amount_mol) for ph in phases]
     offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
     nv = offs[-1]
     r = np.zeros(nv + c)
     jac = np.zeros((nv + c, nv + c))
-    mu = basis @ z[nv:]
+    mu = mu_perp + basis @ z[nv:]
     mass = -solver.bulk.copy()
     for j, ph in enumerate(phases):
         sl = slice(offs[j], offs[j + 1])
@@ -425,14 +465,16 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
     minimality check adds back any phase that should be present). Returns
     (phases, μ) or None if the iteration does not converge.
     """
-    basis = solver.s.basis
     phases = [PhaseState(p.name, p.model, p.solution_index, np.asarray(p.amount_mol, float).copy()) for p in phases]
     scale_b = np.abs(solver.bulk).max()
     tiny = 1e-300
-    mu_r = basis.T @ mu0
+    mu_full = np.asarray(mu0, float).copy()
     for _ in range(solver.opt.polish_iter):
+        basis = _assemblage_basis(solver, phases)
+        mu_r = basis.T @ mu_full
+        mu_perp = mu_full - basis @ mu_r
         z = np.concatenate([*(ph.amount_mol for ph in phases), mu_r])
-        r, jac, offs, mass = _polish_system(solver, phases, z)
+        r, jac, offs, mass = _polish_system(solver, phases, z, basis, mu_perp)
         nv = offs[-1]
         negligible = [j for j, ph in enumerate(phases) if ph.amount_mol.sum() < 1e-12 * scale_b]
         if negligible and len(phases) > 1:
@@ -441,7 +483,7 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         if _merge_twins(solver, phases):
             continue
         if np.abs(r[:nv]).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
-            return phases, basis @ mu_r
+            return phases, mu_full
         is_log = np.zeros(nv, bool)
         totals = np.zeros(nv)
         for j, ph in enumerate(phases):
@@ -451,7 +493,7 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         # endmembers below 1e-30 of their phase are negligible: frozen, their residual ignored
         frozen = is_log & (amounts < 1e-30 * totals)
         if np.abs(np.where(frozen, 0.0, r[:nv])).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
-            return phases, basis @ mu_r
+            return phases, mu_full
         jac[:, :nv][:, is_log] *= amounts[is_log]
         act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
         dz = np.zeros(len(z))
@@ -481,7 +523,7 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
                 ph.amount_mol = amounts[sl] * np.exp(alpha * step[sl])
             else:
                 ph.amount_mol = amounts[sl] + alpha * step[sl]
-        mu_r = mu_r + alpha * dz[nv:]
+        mu_full = mu_perp + basis @ (mu_r + alpha * dz[nv:])
         totals = np.array([ph.amount_mol.sum() for ph in phases])
         if len(phases) > 1 and totals.min() < 1e-13 * scale_b:
             del phases[int(np.argmin(totals))]

@@ -30,9 +30,23 @@ def anorthite_liquid_shift(ds: Dataset) -> float:
     return float(g[1] - g[0])
 
 
+def recalled_liquid_parameters(ds: Dataset) -> Dataset:
+    """The dataset with the melt calibration's liquid H0/S0 shifts undone (the recalled table values).
+
+    The binary models below were fitted on the recalled values; the default melt model's own
+    adjustments (liquid_calibration.toml) belong to its multicomponent liquid, not to them.
+    """
+    h0, s0 = ds.endmembers.h0.copy(), ds.endmembers.s0.copy()
+    for adj in ds.extra.get("liquid_calibration", {}).get("endmember_adjustments", []):
+        i = ds.index(adj["endmember"])
+        h0[i] -= float(adj.get("dh0_j_per_mol", 0.0))
+        s0[i] -= float(adj.get("ds0_j_per_mol_k", 0.0))
+    return dataclasses.replace(ds, endmembers=dataclasses.replace(ds.endmembers, h0=h0, s0=s0))
+
+
 def dataset_with_anorthite_liquid_at_observed_melting() -> Dataset:
-    """The default dataset with anorthite_liquid H0 shifted so anorthite melts at 1826 K."""
-    ds = load_dataset()
+    """Recalled liquid values with anorthite_liquid H0 shifted so anorthite melts at 1826 K."""
+    ds = recalled_liquid_parameters(load_dataset())
     h0 = ds.endmembers.h0.copy()
     h0[ds.index("anorthite_liquid")] -= anorthite_liquid_shift(ds)
     return dataclasses.replace(ds, endmembers=dataclasses.replace(ds.endmembers, h0=h0))

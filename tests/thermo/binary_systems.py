@@ -40,6 +40,6 @@ def di_an(anorthite_wt_percent: float) -> Problem:
 
 def fo_fa(forsterite_wt_percent: float) -> Problem:
     """1 kg of the Fo–Fa join with the given forsterite mass percentage."""
-    ds = load_dataset()
+    ds = bm.recalled_liquid_parameters(load_dataset())
     bulk = bm.join_bulk(ds, "forsterite", "fayalite", forsterite_wt_percent)
     return _problem(ds, bulk, ["olivine"], bm.forsterite_fayalite_liquid())

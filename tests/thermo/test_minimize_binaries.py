@@ -84,7 +84,7 @@ def test_di_an_an60_melt_fraction_at_1300_c(di_an):
 
 @pytest.fixture(scope="module")
 def fo_fa():
-    ds = bm.load_dataset()
+    ds = bm.recalled_liquid_parameters(bm.load_dataset())
     return ds, [bm.forsterite_fayalite_liquid()]
 
 

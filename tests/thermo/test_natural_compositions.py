@@ -1,0 +1,84 @@
+"""Subsolidus assemblages of a fertile peridotite with the default dataset, against experiments.
+
+The bulk is KLB-1 (Davis et al. 2009, Am. Mineral. 94:176; checks.csv C04, memory) reduced to
+NCFMAS (TiO2, Cr2O3, MnO, K2O, NiO and P2O5 dropped; 1.2 wt% in all). Each case sits well inside
+a stability field reported by experiments, at a distance larger than the experimental and
+pressure-scale uncertainties, and checks which phases are present and which are absent.
+
+Without Cr2O3 the spinel field shrinks to lower pressure (Cr stabilises spinel; O'Neill 1981,
+Contrib. Mineral. Petrol. 77:185, memory), so the spinel-lherzolite case is placed low in the
+field. Transition-zone boundaries depend on the pressure scale of the experiment by up to
+~2 GPa (reference/checks.md); the cases are placed between the boundaries as measured on the
+different scales.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from thermo.equilibrium import prepare, solve_point
+
+#: checks.csv C04: KLB-1 (Davis et al. 2009; original analysis Takahashi 1986), memory.
+KLB1_WT_PERCENT = {
+    "SiO2": 44.48, "TiO2": 0.16, "Al2O3": 3.59, "Cr2O3": 0.31, "FeO": 8.10, "MnO": 0.12, "MgO": 39.22,
+    "CaO": 3.44, "Na2O": 0.30, "K2O": 0.02, "NiO": 0.25, "P2O5": 0.03,
+}
+PRESENT = 1e-4  # mass fraction counted as present
+
+
+@pytest.fixture(scope="module")
+def klb1():
+    return prepare(KLB1_WT_PERCENT, drop_unsupported=True)
+
+
+def phases_at(problem, pressure_gpa: float, temperature_k: float) -> set[str]:
+    _, assemblage = solve_point(problem, pressure_gpa, temperature_k)
+    return {p.model for p in assemblage.phases if assemblage.mass_fraction(p) > PRESENT}
+
+
+CASES = [
+    # Plagioclase lherzolite: plagioclase gives way to spinel at ~0.7-0.9 GPa near 1100-1250 C in fertile
+    # lherzolite (Borghini G., Fumagalli P. & Rampone E. (2010) J. Petrol. 51:229; memory). 0.4 GPa, 1250 K.
+    pytest.param(0.4, 1250.0, {"olivine", "orthopyroxene", "clinopyroxene", "plagioclase"}, {"spinel", "garnet"},
+                 id="plagioclase-lherzolite-0.4GPa"),
+    # Spinel lherzolite between the plagioclase-out (~0.8 GPa, above) and the garnet-in reaction, which lies at
+    # ~1.6-2.1 GPa over 1000-1400 C in CMAS (O'Neill H.St.C. (1981) Contrib. Mineral. Petrol. 77:185; Klemme S. &
+    # O'Neill H.St.C. (2000) Contrib. Mineral. Petrol. 138:237; memory). 1.3 GPa, 1250 K.
+    pytest.param(1.3, 1250.0, {"olivine", "orthopyroxene", "clinopyroxene", "spinel"}, {"plagioclase", "garnet"},
+                 id="spinel-lherzolite-1.3GPa"),
+    # Garnet lherzolite well above the spinel-garnet transition (same sources); Takahashi E. (1986) J. Geophys.
+    # Res. 91:9367 reports garnet lherzolite below the KLB-1 solidus at 3-5 GPa. 3.5 GPa, 1450 K.
+    pytest.param(3.5, 1450.0, {"olivine", "orthopyroxene", "clinopyroxene", "garnet"}, {"plagioclase", "spinel"},
+                 id="garnet-lherzolite-3.5GPa"),
+    # Olivine below the olivine-wadsleyite transition: Mg2SiO4 at 1900 K transforms at 9.3 + 0.0036*1627 =
+    # 15.2 GPa (checks.csv T06, Morishima et al. 1994 Science 265:1202); Fe lowers it in peridotite by ~1 GPa.
+    pytest.param(12.0, 1900.0, {"olivine", "garnet"}, {"wadsleyite", "ringwoodite"}, id="olivine-12GPa"),
+    # Wadsleyite between T06 (15.2 GPa at 1900 K) and wadsleyite-ringwoodite (~19.8 GPa at 1900 K from
+    # checks.csv T07, Inoue et al. 2006 Phys. Chem. Miner. 33:106, 18.9 GPa at 1400 C with ~4 MPa/K).
+    pytest.param(16.5, 1900.0, {"wadsleyite", "garnet"}, {"olivine", "ringwoodite", "bridgmanite"},
+                 id="wadsleyite-16.5GPa"),
+    # Ringwoodite between wadsleyite-ringwoodite (~19.8 GPa, T07) and the post-spinel boundary at 1900 K:
+    # 21.1 GPa at 1600 C on the Au scale of Irifune et al. (1998) Science 279:1698 (T08) to 23.0 GPa on the
+    # MgO scale of Fei et al. (2004) J. Geophys. Res. 109:B02305 (T09).
+    pytest.param(20.5, 1900.0, {"ringwoodite", "garnet"}, {"wadsleyite", "bridgmanite", "olivine"},
+                 id="ringwoodite-20.5GPa"),
+    # Bridgmanite + ferropericlase above the post-spinel boundary on either scale (T08, T09); Ca-perovskite
+    # accompanies them in peridotite at the top of the lower mantle.
+    pytest.param(25.0, 1900.0, {"bridgmanite", "ferropericlase", "ca_perovskite"}, {"ringwoodite", "wadsleyite"},
+                 id="bridgmanite-ferropericlase-25GPa"),
+]
+
+
+@pytest.mark.parametrize(("pressure_gpa", "temperature_k", "present", "absent"), CASES)
+def test_fertile_peridotite_subsolidus_assemblage(klb1, pressure_gpa, temperature_k, present, absent):
+    found = phases_at(klb1, pressure_gpa, temperature_k)
+    assert present <= found, f"missing {sorted(present - found)}; found {sorted(found)}"
+    assert not (absent & found), f"unexpected {sorted(absent & found)}; found {sorted(found)}"
+    assert "liquid" not in found
+
+
+def test_fertile_peridotite_is_solid_below_and_partly_molten_above_its_one_bar_solidus(klb1):
+    # checks: Hirschmann M.M. (2000) G3 1:2000GC000070, solidus fit T(C) = 1120.661 + 132.899 P - 5.104 P^2
+    # (memory) gives 1393.8 K at 1 bar; the fit's scatter is ~+/-20-30 K, so check 60 K either side.
+    assert "liquid" not in phases_at(klb1, 0.0001, 1393.8 - 60.0)
+    assert "liquid" in phases_at(klb1, 0.0001, 1393.8 + 60.0)
