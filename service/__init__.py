@@ -12,7 +12,7 @@ from typing import Any
 from flask import Flask
 from flask.json.provider import DefaultJSONProvider
 
-from service import datasets, equilibrium, health, infrastructure
+from service import cooling_paths, datasets, equilibrium, health, infrastructure, isentropes, tables
 from service.errors import register_error_handlers
 from service.negotiation import check_request
 
@@ -56,4 +56,7 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     app.register_blueprint(health.blueprint, url_prefix="/v1")
     app.register_blueprint(datasets.blueprint, url_prefix="/v1")
     app.register_blueprint(equilibrium.blueprint, url_prefix="/v1")
+    app.register_blueprint(cooling_paths.blueprint, url_prefix="/v1")
+    app.register_blueprint(isentropes.blueprint, url_prefix="/v1")
+    app.register_blueprint(tables.blueprint, url_prefix="/v1")
     return app

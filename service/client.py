@@ -466,7 +466,8 @@ class HeatpathClient:
             response = self._send("GET", link, headers={"Accept": accept})
             kind = _plot_kind(job.get("operation", ""))
             if response.status_code == 406 and accept in IMAGE_MEDIA_TYPES.values() and kind:
-                # A job's result is kept as JSON; draw its figure here with the server's own code.
+                # An operation without a figure renderer on this server (or an older server) serves the
+                # job's result as JSON only; draw its figure here with the server's own code.
                 from service.plots import IMAGE_FORMATS, render
 
                 return render(self._decode(self._send("GET", link)), kind, IMAGE_FORMATS[accept])

@@ -29,23 +29,38 @@ blueprint = Blueprint("equilibrium", __name__)
 OPERATION = "v1/equilibrium"
 
 
-def request_parameters(req: dict[str, Any], phases: list[str]) -> dict[str, Any]:
-    """The parsed request as hashed into ``provenance.request_hash`` (defaults filled in)."""
+def common_parameters(operation: str, req: dict[str, Any]) -> dict[str, Any]:
+    """What every computing request hashes into ``provenance.request_hash``: operation, dataset, composition, phases.
+
+    ``phases`` is the dataset's default list when the request names none (defaults filled in).
+    """
     comp = req["composition"]
+    phases = req["phases"] if req["phases"] is not None else default_phase_names(load_dataset(req["dataset"]))
     return {
-        "operation": OPERATION,
+        "operation": operation,
         "dataset_id": req["dataset"],
         "composition": {"basis": comp["basis"], "oxides": dict(comp["oxides"]),
                         "drop_unsupported_oxides": comp["drop_unsupported_oxides"]},
-        "pressure_gpa": req["pressure_gpa"],
-        "temperature_k": req["temperature_k"],
         "phases": list(phases),
     }
 
 
-def result_warnings(problem: Problem, requested_phases: list[str] | None, assemblage: Assemblage) -> list[str]:
-    """Caveats of one equilibrium result: composition handling, left-out phases, weak parameters."""
-    ds, system = problem.dataset, problem.system
+def request_parameters(req: dict[str, Any]) -> dict[str, Any]:
+    """The parsed request as hashed into ``provenance.request_hash`` (defaults filled in)."""
+    return {**common_parameters(OPERATION, req), "pressure_gpa": req["pressure_gpa"],
+            "temperature_k": req["temperature_k"]}
+
+
+def prepare_problem(req: dict[str, Any]) -> Problem:
+    """The core's :class:`~thermo.equilibrium.Problem` for a loaded computing request (composition, dataset, phases)."""
+    comp = req["composition"]
+    return prepare(comp["oxides"], comp["basis"], req["dataset"], phases=req["phases"],
+                   drop_unsupported=comp["drop_unsupported_oxides"])
+
+
+def problem_warnings(problem: Problem, requested_phases: list[str] | None) -> list[str]:
+    """Caveats of every result for a prepared problem: composition handling and left-out phases."""
+    system = problem.system
     out = list(problem.bulk.warnings) + list(system.notes)
     if requested_phases is not None:
         entered = set(system.pure_names) | {s.name for s in system.solutions}
@@ -53,6 +68,13 @@ def result_warnings(problem: Problem, requested_phases: list[str] | None, assemb
         if left_out:
             out.append(f"candidate phases left out because they need oxides absent from the composition "
                        f"(or outside the dataset's components): {', '.join(left_out)}")
+    return out
+
+
+def result_warnings(problem: Problem, requested_phases: list[str] | None, assemblage: Assemblage) -> list[str]:
+    """Caveats of one equilibrium result: those of :func:`problem_warnings`, chemical potentials, weak parameters."""
+    ds, system = problem.dataset, problem.system
+    out = problem_warnings(problem, requested_phases)
     if not system.full_rank:
         out.append(f"the candidate phases span {system.basis.shape[1]} of the {len(system.components)} oxide "
                    "components, so chemical potentials are fixed only in the combinations the phases can "
@@ -81,13 +103,9 @@ def equilibrium() -> Any:
 
 def compute_equilibrium(req: dict[str, Any], progress: Any = None) -> dict[str, Any]:
     """The equilibrium result for a loaded :class:`EquilibriumRequest` (also run by job workers)."""
-    ds = load_dataset(req["dataset"])
-    comp = req["composition"]
-    problem = prepare(comp["oxides"], comp["basis"], ds.id, phases=req["phases"],
-                      drop_unsupported=comp["drop_unsupported_oxides"])
+    problem = prepare_problem(req)
     _, assemblage = solve_point(problem, req["pressure_gpa"], req["temperature_k"])
-    phases = req["phases"] if req["phases"] is not None else default_phase_names(ds)
-    provenance = build_provenance(ds, request_parameters(req, phases),
+    provenance = build_provenance(problem.dataset, request_parameters(req),
                                   result_warnings(problem, req["phases"], assemblage))
     return {
         "pressure_gpa": req["pressure_gpa"],

@@ -16,6 +16,11 @@ it may call ``progress(points_done, points_total)`` now and then. :func:`run_or_
    makes the job finished at once);
 3. otherwise serves the cached body, or computes, caches and serves it (``200``, ``ETag``).
 
+An operation whose result has other representations (CSV, netCDF, a figure) registers a
+renderer per media type with :func:`register_renderer`; :func:`negotiate` then answers the
+synchronous request, and ``GET /v1/jobs/<id>/result`` the job's result, in the media type the
+``Accept`` header prefers (the result itself is kept as JSON; the others are drawn from it).
+
 Jobs are queued with huey (SQLite queue file by default, Redis for scale-out) and run by
 ``heatpath worker`` processes (started by the gunicorn master in the default setup). The job
 *record* lives in the store, so every API process sees the same state, progress and result.
@@ -36,14 +41,16 @@ import threading
 import time
 import uuid
 from collections.abc import Callable
-from typing import Any
+from typing import Any, ClassVar
 
 from flask import Blueprint, Response, current_app, g, request, url_for
 from marshmallow import Schema, fields
+from werkzeug.exceptions import NotAcceptable
 
 from service.cache import encode_result, result_key
 from service.errors import ProblemError, not_found
 from service.metrics import JOBS_FINISHED, SOLVER
+from service.negotiation import JSON_MEDIA_TYPE, produces
 from service.provenance import code_version
 from service.quotas import charge_compute, check_compute_budget, principal
 
@@ -60,11 +67,21 @@ class JobCancelledError(Exception):
     """Raised inside a running computation (by its progress callback) once the job is cancelled."""
 
 
+class StrictBoolean(fields.Boolean):
+    """A JSON ``true`` or ``false`` only (``fields.Boolean`` also takes 1, 0, "yes", and ``{True}`` still matches 1)."""
+
+    default_error_messages: ClassVar[dict[str, str]] = {"invalid": "must be true or false"}
+
+    def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> bool:
+        if not isinstance(value, bool):
+            raise self.make_error("invalid")
+        return value
+
+
 def async_field() -> fields.Boolean:
     """The ``"async"`` member for request schemas of job-capable endpoints (loads as ``run_async``)."""
-    return fields.Boolean(data_key="async", attribute=ASYNC_ATTRIBUTE, load_default=False, truthy={True},
-                          falsy={False}, error_messages={"invalid": "must be true or false"},
-                          metadata={"description": "run as a background job (202 Accepted) even if small"})
+    return StrictBoolean(data_key="async", attribute=ASYNC_ATTRIBUTE, load_default=False,
+                         metadata={"description": "run as a background job (202 Accepted) even if small"})
 
 
 #: Base schema for request bodies of job-capable endpoints: adds the ``"async"`` member.
@@ -294,6 +311,55 @@ def result_response(body: bytes, key: str, cache_state: str | None = None, statu
     return response
 
 
+# --- other representations of a result (CSV, netCDF, figures) -------------------------------------
+
+Render = Callable[[dict[str, Any]], bytes]
+#: operation → media type → (ETag suffix, function drawing that representation from the JSON result).
+RENDERERS: dict[str, dict[str, tuple[str, Render]]] = {}
+
+
+def register_renderer(operation: str, media_type: str, etag_suffix: str, render: Render) -> None:
+    """Offer ``operation``'s result also as ``media_type``, drawn by ``render(result_dict) -> bytes``.
+
+    Called at import time by the module of the operation; ``GET /v1/jobs/<id>/result`` then
+    offers the media type too (for jobs of that operation).
+    """
+    RENDERERS.setdefault(operation, {})[media_type] = (etag_suffix, render)
+    get_result.produces = tuple(dict.fromkeys((*get_result.produces, media_type)))
+
+
+def offered(operation: str) -> tuple[str, ...]:
+    """Media types of ``operation``'s result, JSON first (for ``@produces``)."""
+    return (JSON_MEDIA_TYPE, *RENDERERS.get(operation, {}))
+
+
+def negotiate(operation: str, response: Response) -> Response:
+    """A ``200`` JSON result in the media type the request's Accept prefers among :func:`offered`.
+
+    Other responses (``202``, ``304``) pass unchanged. The rendered response carries the JSON
+    result's ETag with the renderer's suffix (``<etag>.csv``); every response of an operation with
+    several representations varies on Accept. 406 when the Accept header allows none of them.
+    """
+    media_types = offered(operation)
+    best = request.accept_mimetypes.best_match(media_types) if request.accept_mimetypes else JSON_MEDIA_TYPE
+    if best is None:
+        raise NotAcceptable(f"this result is available as {', '.join(media_types)}; the Accept header "
+                            f"({request.headers.get('Accept', '')!r}) allows none of them")
+    if len(media_types) > 1:
+        response.vary.add("Accept")
+    if response.status_code != 200 or best == JSON_MEDIA_TYPE:
+        return response
+    suffix, render = RENDERERS[operation][best]
+    rendered = current_app.response_class(render(response.get_json()), mimetype=best)
+    rendered.vary.add("Accept")
+    if "X-Heatpath-Cache" in response.headers:
+        rendered.headers["X-Heatpath-Cache"] = response.headers["X-Heatpath-Cache"]
+    etag = response.get_etag()[0]
+    if etag:
+        rendered.set_etag(f"{etag}.{suffix}")
+    return rendered
+
+
 def not_modified(key: str) -> Response:
     response = current_app.response_class(status=304)
     response.set_etag(key)
@@ -432,8 +498,9 @@ def cancel_job(job_id: str) -> dict[str, Any]:
 
 
 @blueprint.get("/jobs/<job_id>/result")
+@produces(JSON_MEDIA_TYPE)  # extended by register_renderer
 def get_result(job_id: str) -> Response:
-    """The result of a finished job (the same body and ETag as the synchronous answer)."""
+    """The result of a finished job (the same body and ETag as the synchronous answer), negotiated like it."""
     from service.infrastructure import current
 
     job = _own_job(job_id)
@@ -446,4 +513,4 @@ def get_result(job_id: str) -> Response:
     found = current().store.get("result", job_id)
     if found is None:
         raise not_found("job_id", f"the result of job {job_id} has expired")
-    return result_response(found[0]["body"].encode("utf-8"), job["cache_key"])
+    return negotiate(job["operation"], result_response(found[0]["body"].encode("utf-8"), job["cache_key"]))

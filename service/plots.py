@@ -5,13 +5,17 @@ The functions take the JSON-ready result dicts the API serves (``POST /v1/coolin
 the same figure comes from the server (content negotiation: ``Accept: image/svg+xml`` or
 ``image/png``), from ``heatpath ... --plot FILE`` and from a notebook.
 
-Endpoints serve figures with two lines::
+The heatpath endpoints register their figure once, so that it is served both on the endpoint
+and on ``GET /v1/jobs/<id>/result`` (service/cooling_paths.py)::
 
-    @produces("application/json", *PLOT_MEDIA_TYPES)
+    register_figures(OPERATION, "cooling_path")
+
+    @produces(*offered(OPERATION))
     def cooling_paths():
         ...
-        response = run_or_enqueue(OPERATION, req, compute_cooling_path, size=n_steps)
-        return render_if_requested(response, "cooling_path") or response
+        return negotiate(OPERATION, run_or_enqueue(OPERATION, req, compute_cooling_path, size=n_steps))
+
+:func:`render_if_requested` does the same for a single view (no job results).
 
 Style (heatpath's own): one typeface, thin lines, no box around the plot, light dotted grid,
 a footer that says the figure shows model estimates and names the dataset and code version.
@@ -32,8 +36,8 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 __all__ = [
-    "IMAGE_FORMATS", "PLOT_KINDS", "PLOT_MEDIA_TYPES", "cooling_path_figure", "isentrope_figure", "render",
-    "render_if_requested", "table_figure", "wanted_image_format",
+    "IMAGE_FORMATS", "PLOT_KINDS", "PLOT_MEDIA_TYPES", "cooling_path_figure", "isentrope_figure", "register_figures",
+    "render", "render_if_requested", "table_figure", "wanted_image_format",
 ]
 
 #: Okabe & Ito (2008) colours: liquid first, then crystals in order of appearance.
@@ -330,6 +334,20 @@ def render(result: Mapping[str, Any], kind: str, fmt: str = "svg") -> bytes:
 
     with matplotlib.rc_context(STYLE):
         return _save(FIGURES[kind](result), fmt)
+
+
+def register_figures(operation: str, kind: str) -> None:
+    """Offer the figure of ``operation``'s results as SVG and PNG (see :func:`service.jobs.negotiate`).
+
+    The figure is then served on the operation's own endpoint and on ``GET /v1/jobs/<id>/result``
+    of its jobs, with the JSON result's ETag plus ``.svg`` / ``.png``.
+    """
+    from functools import partial
+
+    from service.jobs import register_renderer
+
+    for media, fmt in IMAGE_FORMATS.items():
+        register_renderer(operation, media, fmt, partial(render, kind=kind, fmt=fmt))
 
 
 def wanted_image_format() -> str | None:

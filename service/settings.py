@@ -36,6 +36,10 @@ SETTINGS: dict[str, tuple[Any, type]] = {
     "HEATPATH_RATE_WINDOW_S": (60, int),
     "HEATPATH_COMPUTE_SECONDS_PER_DAY": (3600.0, float),
     "HEATPATH_ASYNC_THRESHOLD": (500, int),
+    # Request limits of the computing endpoints (422 naming the field and the limit above them).
+    "HEATPATH_MAX_PATH_STEPS": (1000, int),
+    "HEATPATH_MAX_TABLE_POINTS": (20000, int),
+    "HEATPATH_MAX_ISENTROPE_POINTS": (200, int),
     "HEATPATH_JOB_RETENTION_S": (7 * 86400, int),
     "HEATPATH_JOB_STALL_S": (60.0, float),
     "HEATPATH_JOB_MAX_ATTEMPTS": (2, int),

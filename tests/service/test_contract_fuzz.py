@@ -18,8 +18,11 @@ rightly get a 422 naming the field.
 
 The app runs with an in-memory store and a job queue nobody consumes, and work above 8 points
 becomes a job: generated requests for big grids get their ``202`` at once instead of running
-for minutes. A second, smaller run uses an app that requires an API key (none is sent), so the
-401 answers of every protected operation are checked against the document too.
+for minutes. The request limits of the cooling-path, isentrope and table endpoints are set
+tiny (2 steps, 2 pressures, 4 grid nodes), so generated requests above them are answered
+with their 422 at once and those that reach the core stay cheap. A second, smaller run uses an
+app that requires an API key (none is sent), so the 401 answers of every protected operation
+are checked against the document too.
 
 Generated path parameters are almost never real dataset or endmember names, so two targeted
 properties add requests that reach the numerical core, under the same checks: standard-state
@@ -65,7 +68,10 @@ EXAMPLES = int(os.environ.get("HEATPATH_FUZZ_EXAMPLES", "300" if DEEP else "12")
 CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance, response_schema_conformance,
           response_headers_conformance, negative_data_rejection]
 FUZZ_CONFIG = {"TESTING": True, "PROPAGATE_EXCEPTIONS": False, "HEATPATH_STORE": ":memory:",
-               "HEATPATH_QUEUE": "memory", "HEATPATH_ASYNC_THRESHOLD": 8, "HEATPATH_CACHE_MAX_BYTES": 0}
+               "HEATPATH_QUEUE": "memory", "HEATPATH_ASYNC_THRESHOLD": 8, "HEATPATH_CACHE_MAX_BYTES": 0,
+               # Paths, isentropes and tables cost up to seconds per point: tiny request limits keep the
+               # requests that reach the core small (larger ones get their 422 naming the limit at once).
+               "HEATPATH_MAX_PATH_STEPS": 2, "HEATPATH_MAX_ISENTROPE_POINTS": 2, "HEATPATH_MAX_TABLE_POINTS": 4}
 SETTINGS = settings(max_examples=EXAMPLES, deadline=None, database=None, derandomize=not DEEP,
                     suppress_health_check=list(HealthCheck))
 

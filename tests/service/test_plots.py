@@ -176,7 +176,7 @@ def test_render_if_requested_passes_a_202_job_on():
 
 
 def test_client_draws_the_figure_of_a_background_job_itself(tmp_path):
-    """A job's result is stored as JSON (GET .../result offers JSON only); the client draws the figure."""
+    """An operation that registers no figure renderer has its job result as JSON only; the client draws it."""
     from service.client import HeatpathClient
     from tests.service.team_support import make_app
 
