@@ -69,15 +69,24 @@ FO, FA, EN, DI, AN, AB, Q, COR = (
     "anorthite_liquid", "albite_liquid", "silica_liquid", "corundum_liquid",
 )
 
+#: Why a fixed mixing-unit count departs from the one-unit-per-eight-oxygens rule.
+_UNIT_BASIS = {
+    FO: "two octahedral cations (constant Fe-Mg KD with olivine)",
+    FA: "two octahedral cations (constant Fe-Mg KD with olivine)",
+    COR: "2 instead of the rule's 0.375, which makes aluminous spinel the 1-bar liquidus phase of a "
+         "peridotite-like melt near 2200 K",
+}
+
 #: The model: which parameters are fixed, which are fitted, and their priors (mean, width).
 MODEL = {
     # Mixing units. Prior rule: one unit per eight oxygens (albite and anorthite 1, pyroxenes
-    # 0.75, silica 0.25, corundum 0.375), except forsterite and fayalite, which count their two
-    # octahedral cations: with the same two units as the olivine's M sites the Fe-Mg exchange
-    # coefficient with olivine does not depend on the liquid's Fe/Mg (Roeder & Emslie 1970).
+    # 0.75, silica 0.25), except forsterite and fayalite, which count their two octahedral
+    # cations: with the same two units as the olivine's M sites the Fe-Mg exchange coefficient
+    # with olivine does not depend on the liquid's Fe/Mg (Roeder & Emslie 1970); and corundum,
+    # set to 2: the rule's 0.375 makes aluminous spinel the 1-bar liquidus phase of a
+    # peridotite-like melt near 2200 K.
     "fixed_units": {FO: 2.0, FA: 2.0, AN: 1.0, AB: 1.0, DI: 0.75, EN: 0.75, Q: 0.25, COR: 2.0},
     "fitted_units": {},
-    # Margules W_H [J/mol] between mixing units (van Laar asymmetry = units), prior 0 +/- 40 kJ.
     # Margules W_H [J/mol] between mixing units (van Laar asymmetry = units): (species, species, prior width).
     # Prior mean 0; width 20 kJ, except where the data demand a strong interaction (stated).
     "interactions": [
@@ -210,8 +219,7 @@ def write_calibration(fit: FitResult, species: list[str], stats: dict[str, str])
                      f"standard error {err[name]:.2f}")
             rows = _toml_list(_fitted_to(fit, name))
         else:
-            basis = "fixed: " + ("two octahedral cations (constant Fe-Mg KD with olivine)" if s in (FO, FA)
-                                 else "one unit per eight oxygens (sets the scale)")
+            basis = "fixed: " + _UNIT_BASIS.get(s, "one unit per eight oxygens (sets the scale)")
             rows = "[]"
         lines += [f"[mixing_units.{s}]", f"value = {p.units[s]:.4f}", f'basis = "{basis}"', f"fitted_to = {rows}", ""]
     for (a, b), w in p.w_h.items():
