@@ -123,10 +123,15 @@ def _num(x) -> str:
     return repr(float(x)) if not isinstance(x, int | np.integer) else str(int(x))
 
 
-def _write_csv(title: str, meta: list[tuple[str, object]], cols: dict[str, np.ndarray]) -> str:
+def _table_column(name: str) -> tuple[str, str]:
+    return _units(name) if name != "phase" else ("", "")
+
+
+def _write_csv(title: str, meta: list[tuple[str, object]], cols: dict[str, np.ndarray], describe=_table_column) -> str:
+    """CSV text: ``#`` header lines (title, one line per column with unit and description, metadata), then rows."""
     lines = [f"# {title}"]
     for name in cols:
-        unit, desc = _units(name) if name != "phase" else ("", "")
+        unit, desc = describe(name)
         lines.append(f"# column: {name} | {unit} | {desc}")
     for key, value in meta:
         _header(lines, key, value)
@@ -202,22 +207,15 @@ def path_to_csv(path: CoolingPath, provenance: dict | None = None) -> str:
     for n in names:
         cols[f"mass_fraction_{n}"] = np.array(
             [next((ph.mass_fraction for ph in pt.phases if ph.name == n), 0.0) for pt in path.points])
-    lines = ["# heatpath cooling path"]
-    for c in cols:
-        unit = next((u for k, u in sorted(_PATH_UNITS.items(), key=lambda kv: -len(kv[0])) if c.endswith(k)), "1")
-        lines.append(f"# column: {c} | {unit} | {c.replace('_', ' ')}")
     meta = [("mode", path.mode), ("pressure_gpa", path.pressure_gpa), ("reference_state", REFERENCE_STATE),
             ("liquidus_k", path.liquidus_k), ("solidus_k", path.solidus_k), ("notes", list(path.notes)),
             ("diagnostics", path.diagnostics), ("provenance", provenance or {})]
-    for key, value in meta:
-        _header(lines, key, value)
-    out = io.StringIO()
-    out.write("\n".join(lines) + "\n")
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(list(cols))
-    for row in zip(*cols.values(), strict=True):
-        writer.writerow([_num(v) for v in row])
-    return out.getvalue()
+    return _write_csv("heatpath cooling path", meta, cols, describe=_path_column)
+
+
+def _path_column(name: str) -> tuple[str, str]:
+    unit = next((u for k, u in sorted(_PATH_UNITS.items(), key=lambda kv: -len(kv[0])) if name.endswith(k)), "1")
+    return unit, name.replace("_", " ")
 
 
 # ---------------------------------------------------------------- netCDF
