@@ -39,7 +39,7 @@ from scipy.optimize import linprog, nnls
 from thermo import solutions as sol
 from thermo.endmembers import StandardState, standard_state
 from thermo.errors import CompositionError, ConvergenceError
-from thermo.phases import PhaseSystem, SolutionPhase
+from thermo.phases import PhaseSystem, SolutionPhase, span
 
 
 @dataclass(frozen=True)
@@ -394,12 +394,7 @@ def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
     """Orthonormal basis (c, r) of the compositions the present phases span."""
     rows = [solver.s.pure_stoich[[solver.s.pure_names.index(p.model)]] if p.solution_index < 0
             else solver.s.solutions[p.solution_index].stoich for p in phases]
-    return _span_rows(np.vstack(rows))
-
-
-def _span_rows(a: np.ndarray) -> np.ndarray:
-    _, sv, vt = np.linalg.svd(a, full_matrices=False)
-    return vt[: int(np.sum(sv > 1e-10 * sv.max()))].T
+    return span(np.vstack(rows))
 
 
 def _polish_system(solver: _Solver, phases: list[PhaseState], z, basis, mu_perp):

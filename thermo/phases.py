@@ -132,7 +132,7 @@ def build_system(
         for m in sols
     )
     n_pure = len(pure)
-    basis = _span(stoich)
+    basis = span(stoich)
     b = bulk_mol[active]
     if np.abs(b - basis @ (basis.T @ b)).max() > 1e-9 * np.abs(b).max():
         raise CompositionError(
@@ -148,7 +148,7 @@ def build_system(
     )
 
 
-def _span(stoich: np.ndarray) -> np.ndarray:
+def span(stoich: np.ndarray) -> np.ndarray:
     """Orthonormal basis (c, r) of the space spanned by the endmember compositions."""
     if stoich.size == 0:
         return np.zeros((stoich.shape[1], 0))
