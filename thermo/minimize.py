@@ -36,10 +36,11 @@ import numpy as np
 from scipy.constants import R
 from scipy.optimize import linprog, nnls
 
-from thermo import solutions as sol
+from thermo import kernels
 from thermo.endmembers import StandardState, standard_state
 from thermo.errors import CompositionError, ConvergenceError
 from thermo.phases import PhaseSystem, SolutionPhase, span
+from thermo.programme import HIGHS_OPTIONS, ColumnProgramme, InfeasibleError
 
 
 @dataclass(frozen=True)
@@ -88,99 +89,35 @@ class Equilibrium:
 
 
 # ------------------------------------------------------------ solution helpers
-def _mu(phase: SolutionPhase, n, g0, t, p):
-    return sol.chemical_potentials(phase.model, n, g0, t, p)
+def _kernel_args(phase: SolutionPhase, g0, t, p) -> tuple:
+    """Arguments of the :mod:`thermo.kernels` functions for one solution at (T, P) with standard μ ``g0``."""
+    return (*phase.model.kernel_args(t, p), np.ascontiguousarray(g0, dtype=float), R * t)
 
 
-def _mu_jacobian(phase: SolutionPhase, n, g0, t, p):
-    """μ and ∂μ_i/∂n_j for a batch of amounts n (K, m) by complex step."""
-    k, m = n.shape
-    h = 1e-30 * np.maximum(np.abs(n).sum(axis=1), 1e-300)
-    pert = np.repeat(n[:, None, :].astype(complex), m, axis=1)
-    pert[:, np.arange(m), np.arange(m)] += 1j * h[:, None]
-    mu_c = _mu(phase, pert.reshape(k * m, m), g0, t, p).reshape(k, m, m)
-    jac = np.imag(mu_c) / h[:, None, None]  # [k, j, i] = dμ_i/dn_j
-    return np.real(mu_c[:, 0, :]), np.swapaxes(jac, 1, 2)
+def _as_rows(x) -> np.ndarray:
+    return np.ascontiguousarray(x, dtype=float)
 
 
-def _driving_force(phase, x, g0, t, p, mu_c):
-    mu = _mu(phase, x, g0, t, p)
-    return np.sum(x * (mu - phase.stoich @ mu_c), axis=-1) / np.sum(x, axis=-1)
+def _mu_jacobian(kargs: tuple, n):
+    """μ (K, m) and the exact ∂μ_i/∂n_j (K, m, m) for a batch of amounts n (K, m)."""
+    return kernels.chemical_potentials_jacobian(_as_rows(n), *kargs)
 
 
-def _newton_direction(jac, g):
-    """Newton step on the simplex tangent space (KKT system with Σ dx = 0), batched."""
-    k, m = g.shape
-    kkt = np.zeros((k, m + 1, m + 1))
-    kkt[:, :m, :m] = jac
-    kkt[:, :m, m] = 1.0
-    kkt[:, m, :m] = 1.0
-    rhs = np.concatenate([-g, np.zeros((k, 1))], axis=1)
-    with np.errstate(all="ignore"):
-        try:
-            step = np.linalg.solve(kkt, rhs[..., None])[..., 0][:, :m]
-        except np.linalg.LinAlgError:
-            step = np.full((k, m), np.nan)
-    pg = g - g.mean(axis=1, keepdims=True)
-    bad = ~np.all(np.isfinite(step), axis=1) | (np.sum(step * g, axis=1) >= 0)
-    step[bad] = -pg[bad] / (np.abs(pg[bad]).max(axis=1, keepdims=True) + 1e-300) * 0.1
-    return step, pg
+def _driving_force(kargs: tuple, x, target) -> np.ndarray:
+    """D(x) = Σ x_i(μ_i − a_i·μ)/Σ x_i [J/mol] for compositions x (K, m); ``target`` = a·μ (m,)."""
+    return kernels.driving_forces(_as_rows(x), *kargs, _as_rows(target))
 
 
-def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6):
+def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6, kargs=None):
     """Batched Newton minimization of D(x) on the simplex from ``starts`` (K, m).
 
-    Rows converge independently (projected gradient times x below ``gtol`` J/mol)
-    and are then frozen. Returns compositions, driving forces and G evaluations.
+    Rows converge independently (projected gradient times x below ``gtol`` J/mol).
+    Returns compositions, driving forces and G evaluations (see
+    :func:`thermo.kernels.minimize_driving_force`).
     """
-    x = starts / starts.sum(axis=1, keepdims=True)
-    m = x.shape[1]
-    d_val = _driving_force(phase, x, g0, t, p, mu_c)
-    evals = len(x)
-    if m == 1:
-        return x, d_val, evals
-    target = phase.stoich @ mu_c
-    live = np.ones(len(x), bool)
-    for _ in range(iters):
-        idx = np.flatnonzero(live)
-        if idx.size == 0:
-            break
-        xs = x[idx]
-        mu, jac = _mu_jacobian(phase, xs, g0, t, p)
-        evals += len(idx) * (m + 1)
-        step, pg = _newton_direction(jac, mu - target)
-        done = np.max(np.abs(pg * xs), axis=1) < gtol
-        live[idx[done]] = False
-        neg = step < 0
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(neg, -0.9 * xs / np.where(neg, step, -1.0), np.inf)
-        alpha = np.minimum(1.0, ratio.min(axis=1))
-        d_old = d_val[idx]
-        # rows whose quadratic model cannot bring D below zero and that are already positive stop early
-        predicted = d_old + 0.5 * np.sum((mu - target) * step, axis=1)
-        hopeless = (d_old > 2.0 * R * t) & (predicted > 0.5 * d_old)
-        live[idx[hopeless]] = False
-        pending = ~done & ~hopeless
-        trial = xs.copy()
-        d_new = d_old.copy()
-        for _ls in range(10):
-            if not pending.any():
-                break
-            tr = np.clip(xs[pending] + alpha[pending, None] * step[pending], 1e-300, None)
-            tr /= tr.sum(axis=1, keepdims=True)
-            dn = _driving_force(phase, tr, g0, t, p, mu_c)
-            evals += int(pending.sum())
-            ok = dn <= d_old[pending] + 1e-13 * np.abs(d_old[pending])
-            rows = np.flatnonzero(pending)
-            trial[rows[ok]] = tr[ok]
-            d_new[rows[ok]] = dn[ok]
-            alpha[rows[~ok]] *= 0.5
-            pending[rows[ok]] = False
-        stalled = pending  # no decrease found: converged to round-off
-        live[idx[stalled]] = False
-        x[idx] = trial
-        d_val[idx] = d_new
-    return x, d_val, evals
+    kargs = kargs if kargs is not None else _kernel_args(phase, g0, t, p)
+    return kernels.minimize_driving_force(_as_rows(starts), *kargs, _as_rows(phase.stoich @ mu_c), int(iters),
+                                          float(gtol))
 
 
 def _bulk_like(phase: SolutionPhase, bulk) -> np.ndarray:
@@ -213,6 +150,21 @@ def _simplex_points(m: int, count: int = 60) -> np.ndarray:
     return out
 
 
+def _start_pool(system: PhaseSystem, bulk: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Per solution: the simplex spread and the bulk-like compositions (cached on the system per bulk)."""
+    cache = system.scratch.setdefault("start_pool", {})
+    key = bulk.tobytes()
+    pools = cache.get(key)
+    if pools is None:
+        if len(cache) >= 64:
+            cache.clear()
+        pools = tuple(np.vstack([_simplex_points(ph.model.size), _bulk_like(ph, bulk)]) for ph in system.solutions)
+        for arr in pools:
+            arr.setflags(write=False)
+        cache[key] = pools
+    return pools
+
+
 # ------------------------------------------------------------------ LP stage
 @dataclass
 class _Columns:
@@ -226,38 +178,46 @@ class _Columns:
         self.owner.append(owner)
 
     def prune(self, mu, lam, limit: float) -> np.ndarray:
-        """Drop columns whose reduced cost G - a·μ exceeds ``limit`` (never basic ones); returns kept λ."""
+        """Drop columns whose reduced cost G - a·μ exceeds ``limit`` (never basic ones); returns the kept mask."""
         reduced = np.array(self.g) - np.array(self.comp) @ mu
         # pure phases and exact endmember columns always stay: they keep bulks on a join representable
         anchor = np.array([o[0] == -1 or np.count_nonzero(o[1]) == 1 for o in self.owner])
         keep = (reduced <= limit) | (lam > 0.0) | anchor
         for name in ("comp", "g", "owner"):
             setattr(self, name, [v for v, k in zip(getattr(self, name), keep, strict=True) if k])
-        return lam[keep]
+        return keep
 
 
-#: Tight feasibility tolerances: reduced costs (driving forces) must resolve ~1e-4 J/mol on scaled objectives.
-_HIGHS_OPTIONS = {"primal_feasibility_tolerance": 1e-10, "dual_feasibility_tolerance": 1e-10}
+def _solve_lp(cols: _Columns, bulk, mu_ref, programme: ColumnProgramme | None = None):
+    """Optimal λ of the columns and the chemical potentials μ (equality duals) [J/mol].
 
-
-def _solve_lp(cols: _Columns, bulk, mu_ref):
-    a = np.array(cols.comp).T
-    g = np.array(cols.g) - mu_ref @ a
-    scale = max(1.0, float(np.abs(g).max()))
-    res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method="highs", options=_HIGHS_OPTIONS)
-    for method in ("highs-ds", "highs-ipm"):  # degenerate programmes (bulks on a join): other HiGHS solvers
-        if res.status == 0:
-            break
-        res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method=method)
-    if res.status == 2:
+    The persistent HiGHS model of ``programme`` is used first; degenerate programmes (bulks on a
+    join) that it does not solve to optimality go to scipy's HiGHS solvers in turn.
+    """
+    comp = np.array(cols.comp)
+    try:
+        if programme is not None:
+            solved = programme.solve(comp, np.array(cols.g), mu_ref)
+            if solved is not None:
+                return solved
+        a = comp.T
+        g = np.array(cols.g) - mu_ref @ a
+        scale = max(1.0, float(np.abs(g).max()))
+        for method in ("highs", "highs-ds", "highs-ipm"):
+            options = HIGHS_OPTIONS if method == "highs" else {}
+            res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method=method, options=options)
+            if res.status == 0:
+                break
+        if res.status == 2:
+            raise InfeasibleError
+    except InfeasibleError:
         raise CompositionError(
             "composition.oxides",
             "the bulk composition cannot be made from the candidate phases (outside the phases' chemical system)",
-        )
+        ) from None
     if res.status != 0:
         raise ConvergenceError(f"linear programme failed: {res.message}", {"lp_status": res.status})
-    mu = mu_ref + scale * np.asarray(res.eqlin.marginals)
-    return res.x, mu
+    return res.x, mu_ref + scale * np.asarray(res.eqlin.marginals)
 
 
 class _Solver:
@@ -267,9 +227,11 @@ class _Solver:
         self.std = standard_state(system.params, p, t)
         self.g0 = self.std.g_j_per_mol
         self.evals = 0
-        self.pool = [np.vstack([_simplex_points(ph.model.size), _bulk_like(ph, self.bulk)]) for ph in system.solutions]
+        self.pool = list(_start_pool(system, self.bulk))
         self.probes: dict = {}
         self.skip_check_rt = options.check_skip_rt
+        self.programme = ColumnProgramme(self.bulk)
+        self.kargs = [_kernel_args(ph, self.g0[ph.endmember_index], self.t, self.p) for ph in system.solutions]
 
     def g0_of(self, phase: SolutionPhase):
         return self.g0[phase.endmember_index]
@@ -277,8 +239,12 @@ class _Solver:
     def solution_column(self, si, x):
         ph = self.s.solutions[si]
         x = x / x.sum()
-        g = float(sol.molar_gibbs(ph.model, x[None], self.g0_of(ph), self.t, self.p)[0])
-        return x @ ph.stoich, g
+        return x @ ph.stoich, float(self.molar_gibbs(si, x[None])[0])
+
+    def molar_gibbs(self, si, x) -> np.ndarray:
+        """G per mole of formula units, Σ x_i μ_i / Σ x_i, for compositions x (K, m) of solution ``si``."""
+        x = _as_rows(x)
+        return np.sum(x * kernels.chemical_potentials(x, *self.kargs[si]), axis=1) / np.sum(x, axis=1)
 
     def initial_columns(self, warm_phases):
         cols = _Columns([], [], [])
@@ -286,7 +252,7 @@ class _Solver:
             cols.add(self.s.pure_stoich[k], self.g0[k], (-1, k))
         for si, ph in enumerate(self.s.solutions):
             pts = self.pool[si]
-            gs = sol.molar_gibbs(ph.model, pts, self.g0_of(ph), self.t, self.p)
+            gs = self.molar_gibbs(si, pts)
             self.evals += len(pts)
             for x, g in zip(pts, gs, strict=True):
                 cols.add(x @ ph.stoich, g, (si, x))
@@ -308,7 +274,8 @@ class _Solver:
         out = []
         for si, ph in enumerate(self.s.solutions):
             pool = self.pool[si]
-            d = _driving_force(ph, pool, self.g0_of(ph), self.t, self.p, mu)
+            target = ph.stoich @ mu
+            d = _driving_force(self.kargs[si], pool, target)
             self.evals += len(pool)
             if si in self.probes:
                 order = np.argsort(d)[:1]
@@ -317,7 +284,7 @@ class _Solver:
             starts, d_starts = pool[order], d[order]
             if si in self.probes:
                 # warm check: last step's local minimizers are the main starts
-                dp = _driving_force(ph, self.probes[si], self.g0_of(ph), self.t, self.p, mu)
+                dp = _driving_force(self.kargs[si], self.probes[si], target)
                 self.evals += len(dp)
                 starts, d_starts = np.vstack([self.probes[si], starts]), np.concatenate([dp, d_starts])
             if d_starts.min() > skip_above and not (extra_starts and si in extra_starts):
@@ -326,7 +293,7 @@ class _Solver:
             if extra_starts and si in extra_starts:
                 starts = np.vstack([starts, extra_starts[si]])
             x, dv, ev = _minimize_driving_force(
-                ph, starts, self.g0_of(ph), self.t, self.p, mu, iters or self.opt.newton_iter
+                ph, starts, None, self.t, self.p, mu, iters or self.opt.newton_iter, kargs=self.kargs[si]
             )
             self.evals += ev
             out.append((x, dv))
@@ -423,7 +390,7 @@ def _polish_system(solver: _Solver, phases: list[PhaseState], z, basis, mu_perp)
         else:
             sp = s.solutions[ph.solution_index]
             a = sp.stoich
-            muj, hj = _mu_jacobian(sp, n[None], solver.g0_of(sp), solver.t, solver.p)
+            muj, hj = _mu_jacobian(solver.kargs[ph.solution_index], n[None])
             solver.evals += len(n) + 1
             r[sl] = muj[0] - a @ mu
             jac[sl, sl] = hj[0]
@@ -627,9 +594,11 @@ def equilibrate(
     for outer in range(opt.max_outer):
         diag["outer_iterations"] = outer + 1
         lp_only = setbacks >= opt.max_setbacks
-        lam, mu = _solve_lp(cols, solver.bulk, mu)
+        lam, mu = _solve_lp(cols, solver.bulk, mu, solver.programme)
         if outer == 0:  # far-from-stable columns only slow the later programmes down
-            lam = cols.prune(mu, lam, opt.prune_rt * R * solver.t)
+            keep = cols.prune(mu, lam, opt.prune_rt * R * solver.t)
+            lam = lam[keep]
+            solver.programme.drop(keep)
         tol = opt.check_tol if lp_only else opt.driving_force_tol
         found = solver.best_driving_forces(
             mu, iters=opt.newton_iter if lp_only else opt.colgen_newton_iter,

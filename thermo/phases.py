@@ -49,6 +49,8 @@ class PhaseSystem:
     dataset_id: str = ""
     dataset_checksum: str = ""
     notes: list[str] = field(default_factory=list)
+    # derived data the minimizer caches per bulk composition (start compositions); not part of identity
+    scratch: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
     def full_rank(self) -> bool:

@@ -29,6 +29,7 @@ inputs, which :mod:`thermo.minimize` uses for exact complex-step derivatives.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from scipy.constants import R
@@ -63,6 +64,21 @@ class SolutionModel:
     def w(self, temperature_k: float, pressure_pa: float) -> np.ndarray:
         """Interaction energies W = W_H - T·W_S + P·W_V [J/mol]."""
         return self.w_h - temperature_k * self.w_s + pressure_pa * self.w_v
+
+    @cached_property
+    def _static_kernel_args(self) -> tuple:
+        c = np.ascontiguousarray
+        return (self.kind == "units", c(self.occupancy * self.multiplicity, float), c(self.occupancy, float),
+                c(self.log_k, float), c(self.units, float), c(self.alpha, float))
+
+    def kernel_args(self, temperature_k: float, pressure_pa: float) -> tuple:
+        """Parameters of :mod:`thermo.kernels` at (T, P): the static arrays, C = B + Bᵀ and a flag.
+
+        B_ij = 2W_ij/(α_i + α_j) for i < j (Holland & Powell 2003, Contrib. Mineral. Petrol. 145:492).
+        """
+        b = 2.0 * self.w(temperature_k, pressure_pa) / (self.alpha[:, None] + self.alpha[None, :])
+        cmat = np.ascontiguousarray(b + b.T, dtype=float)
+        return (*self._static_kernel_args, cmat, bool(np.any(cmat)))
 
     def restrict(self, keep: list[str]) -> SolutionModel:
         """The model restricted to the endmembers in ``keep`` (others absent)."""

@@ -12,12 +12,13 @@ import numpy as np
 import pytest
 from scipy.optimize import linprog
 
+from tests.thermo import driving_force_reference as reference
 from thermo import solutions as sol
 from thermo.composition import bulk_from_oxides
 from thermo.dataset import load_dataset
 from thermo.equilibrium import prepare, solve_point
 from thermo.errors import CompositionError, ConvergenceError, OutOfDomainError
-from thermo.minimize import SolverOptions, _minimize_driving_force, equilibrate
+from thermo.minimize import SolverOptions, equilibrate
 from thermo.phases import build_system
 
 DS = load_dataset()
@@ -77,8 +78,8 @@ def _independent_driving_forces(eq, rng, samples=400):
         d = np.sum(x * (sol.chemical_potentials(ph.model, x, g0[ph.endmember_index], eq.temperature_k,
                                                 eq.pressure_pa) - ph.stoich @ eq.mu), axis=1)
         starts = x[np.argsort(d)[:4]]
-        _, dv, _ = _minimize_driving_force(ph, starts, g0[ph.endmember_index], eq.temperature_k, eq.pressure_pa,
-                                           eq.mu, 60)
+        _, dv, _ = reference.minimize_driving_force(ph, starts, g0[ph.endmember_index], eq.temperature_k,
+                                                    eq.pressure_pa, eq.mu, 60)
         worst[ph.name] = (min(float(dv.min()), float(d.min())), ph.name in present)
     for k, name in enumerate(s.pure_names):
         worst[name] = (float(g0[k] - s.pure_stoich[k] @ eq.mu), name in present)
