@@ -89,7 +89,11 @@ _supervisor = None
 
 
 def on_starting(server):
-    """Auth policy: never open to the network by accident."""
+    """Compiled kernels ready before workers fork; auth policy: never open to the network by accident."""
+    from thermo.kernels import warm_up
+
+    warm_up()  # forked workers inherit the compiled code (numba caches it on disk for later starts)
+
     from service.auth import has_active_keys
     from service.settings import is_exposed, resolve
     from service.store import open_store

@@ -54,12 +54,17 @@ def bounded(value: float, upper: float) -> float:
 
 def phase_json(assemblage: Assemblage, phase: PhaseProperties) -> dict[str, Any]:
     """One phase of ``assemblage`` (instances of one solution are named ``clinopyroxene``, ``clinopyroxene#2``)."""
+    return _phase_fields(phase, assemblage.mass_fraction(phase), assemblage.volume_fraction(phase), assemblage.mass_kg)
+
+
+def _phase_fields(phase: PhaseProperties, mass_fraction: float, volume_fraction: float,
+                  system_mass_kg: float) -> dict[str, Any]:
     return {
         "name": phase.name,
         "is_liquid": bool(phase.is_liquid),
-        "mass_fraction": bounded(assemblage.mass_fraction(phase), 1.0),
-        "volume_fraction": bounded(assemblage.volume_fraction(phase), 1.0),
-        "amount_mol_per_kg": float(phase.amount_mol / assemblage.mass_kg),
+        "mass_fraction": bounded(mass_fraction, 1.0),
+        "volume_fraction": bounded(volume_fraction, 1.0),
+        "amount_mol_per_kg": float(phase.amount_mol / system_mass_kg),
         "molar_mass_kg_per_mol": float(phase.molar_mass_kg_per_mol),
         "composition_wt_percent": {ox: bounded(v, 100.0) for ox, v in phase.composition_wt_percent.items()},
         "endmember_fractions": {em: float(x) for em, x in zip(phase.endmembers, phase.endmember_fractions,
@@ -144,14 +149,9 @@ def optional_float(value: Any) -> float | None:
 
 
 def path_phase_json(phase: PhaseRecord) -> dict[str, Any]:
-    """One phase at a step of a cooling path: the fields of the /v1/equilibrium phase object the path keeps."""
-    return {
-        "name": phase.name,
-        "is_liquid": bool(phase.is_liquid),
-        "mass_fraction": bounded(phase.mass_fraction, 1.0),
-        "composition_wt_percent": {ox: bounded(v, 100.0) for ox, v in phase.composition_wt_percent.items()},
-        "density_kg_per_m3": float(phase.density_kg_per_m3),
-    }
+    """One phase at a step of a cooling path: the same object as a /v1/equilibrium phase (fractions of the
+    material at the step)."""
+    return _phase_fields(phase.properties, phase.mass_fraction, phase.volume_fraction, phase.system_mass_kg)
 
 
 def path_step_json(point: PathPoint) -> dict[str, Any]:

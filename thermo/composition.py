@@ -11,6 +11,7 @@ from __future__ import annotations
 import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -26,8 +27,9 @@ KNOWN_OXIDES: dict[str, str] = {
 BASES = ("wt_percent", "mol_percent")
 
 
+@lru_cache(maxsize=128)
 def oxide_molar_mass_g_per_mol(oxide: str) -> float:
-    """Molar mass [g/mol] of a known oxide."""
+    """Molar mass [g/mol] of a known oxide (cached: formulas are parsed once)."""
     return molar_mass_g_per_mol(oxide)
 
 

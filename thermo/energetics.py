@@ -32,6 +32,7 @@ from thermo.equilibrium import Problem
 from thermo.errors import ConvergenceError
 from thermo.minimize import Equilibrium, SolverOptions, equilibrate
 from thermo.phases import PhaseSystem, build_system
+from thermo.sensitivity import SingularBranch, branch_rates, branch_slopes
 
 #: Phases below this mass fraction do not count as present in a state's signature.
 PRESENT_MASS_FRACTION = 1e-12
@@ -170,14 +171,17 @@ class Derivatives:
 
 
 def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> Derivatives:
-    """Effective (equilibrium-path) derivatives at a state by finite differences of converged states.
+    """Effective (equilibrium-path) derivatives at a state, on the state's own branch.
 
-    Central differences f'(T) ≈ [f(T+δ) − f(T−δ)]/(2δ) when T ± δ carry the
-    state's own assemblage; otherwise the second-order one-sided stencil
-    [∓3f(T) ± 4f(T±δ) ∓ f(T±2δ)]/(2δ) on the side that does (standard
-    finite-difference formulas, e.g. Fornberg 1988, Math. Comput. 51:699).
-    d²h/dT² (the slope of cp_eff) from the same three states.
-    If phase boundaries lie within δ on both sides, δ is divided by 10 (twice at most).
+    First derivatives (dh/dT, ds/dT, dv/dT, dφ/dT) are exact, by implicit differentiation of the
+    equilibrium conditions (:mod:`thermo.sensitivity`); the slopes of cp_frozen and cp_eff are
+    central differences of exact first derivatives at predicted states T ± δ (stencil
+    ``"analytic"``). Where the linearized conditions are singular, finite differences of
+    converged states are used instead: central differences f'(T) ≈ [f(T+δ) − f(T−δ)]/(2δ) when
+    T ± δ carry the state's own assemblage; otherwise the second-order one-sided stencil
+    [∓3f(T) ± 4f(T±δ) ∓ f(T±2δ)]/(2δ) on the side that does (standard finite-difference
+    formulas, e.g. Fornberg 1988, Math. Comput. 51:699), δ divided by 10 (twice at most) when
+    phase boundaries lie within δ on both sides.
 
     Parameters
     ----------
@@ -190,8 +194,12 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> D
     Raises
     ------
     ConvergenceError
-        If phase boundaries lie within δ/100 on both sides.
+        If the finite-difference fallback finds phase boundaries within δ/100 on both sides.
     """
+    try:
+        return _analytic_derivatives(state, delta_k)
+    except SingularBranch:
+        pass
     for delta in (delta_k, delta_k / 10.0, delta_k / 100.0):
         found = _derivatives_with_step(problem, state, delta)
         if found is not None:
@@ -199,6 +207,22 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> D
     raise ConvergenceError(
         f"phase boundaries within {delta_k / 100.0} K on both sides of T = {state.temperature_k:.6f} K",
         {"temperature_k": state.temperature_k, "delta_k": delta_k},
+    )
+
+
+def _analytic_derivatives(state: State, delta_k: float) -> Derivatives:
+    rates = branch_rates(state.eq)
+    cf_slope, ce_slope = branch_slopes(state.eq, rates, delta_k)
+    m, t = state.mass_kg, state.temperature_k
+    cp_eff = rates.heat_capacity_effective_j_per_k / m
+    return Derivatives(
+        cp_effective_j_per_kg_k=cp_eff,
+        ds_dt_j_per_kg_k2=cp_eff / t,
+        cp_frozen_slope_j_per_kg_k2=cf_slope / m,
+        cp_effective_slope_j_per_kg_k2=ce_slope / m,
+        alpha_effective_per_k=rates.volume_rate_m3_per_k / m / state.props.v_m3_per_kg,
+        melt_fraction_derivative_per_k=rates.melt_mass_rate_kg_per_k / m,
+        stencil="analytic", delta_k=delta_k,
     )
 
 

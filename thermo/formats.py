@@ -190,20 +190,32 @@ def read_csv(text: str) -> dict:
     return {"header": header, "columns": cols}
 
 
+#: Cooling-path CSV columns: (column name, the same name as in the JSON steps of /v1/cooling-paths) →
+#: PathPoint attribute. Step and cumulative heats are per kg of the starting parcel.
 _PATH_COLUMNS = (
-    "temperature_k", "melt_fraction", "system_mass_kg_per_kg_initial", "specific_enthalpy_j_per_kg",
-    "specific_entropy_j_per_kg_k", "cp_frozen_j_per_kg_k", "cp_effective_j_per_kg_k", "latent_heat_rate_j_per_kg_k",
-    "density_kg_per_m3", "step_heat_released_j_per_kg_initial", "step_latent_heat_j_per_kg_initial",
-    "step_entropy_change_j_per_k_per_kg_initial", "cumulative_latent_heat_j_per_kg_initial",
+    ("temperature_k", "temperature_k"), ("melt_fraction", "melt_fraction"),
+    ("system_mass_kg_per_kg_initial", "system_mass_kg_per_kg_initial"),
+    ("specific_enthalpy_j_per_kg", "specific_enthalpy_j_per_kg"),
+    ("specific_entropy_j_per_kg_k", "specific_entropy_j_per_kg_k"),
+    ("heat_capacity_frozen_j_per_kg_k", "cp_frozen_j_per_kg_k"),
+    ("heat_capacity_effective_j_per_kg_k", "cp_effective_j_per_kg_k"),
+    ("latent_heat_rate_j_per_kg_k", "latent_heat_rate_j_per_kg_k"),
+    ("thermal_expansivity_frozen_per_k", "alpha_frozen_per_k"),
+    ("thermal_expansivity_effective_per_k", "alpha_effective_per_k"),
+    ("density_kg_per_m3", "density_kg_per_m3"),
+    ("heat_released_j_per_kg", "step_heat_released_j_per_kg_initial"),
+    ("latent_heat_j_per_kg", "step_latent_heat_j_per_kg_initial"),
+    ("entropy_change_j_per_kg_k", "step_entropy_change_j_per_k_per_kg_initial"),
+    ("cumulative_latent_heat_j_per_kg", "cumulative_latent_heat_j_per_kg_initial"),
 )
-_PATH_UNITS = {"k": "K", "j_per_kg": "J kg-1", "j_per_kg_k": "J kg-1 K-1", "kg_per_m3": "kg m-3",
+_PATH_UNITS = {"k": "K", "per_k": "K-1", "j_per_kg": "J kg-1", "j_per_kg_k": "J kg-1 K-1", "kg_per_m3": "kg m-3",
                "kg_per_kg_initial": "kg kg-1", "j_per_kg_initial": "J kg-1", "j_per_k_per_kg_initial": "J K-1 kg-1"}
 
 
 def path_to_csv(path: CoolingPath, provenance: dict | None = None) -> str:
     """CSV text of a cooling path: one line per row, plus the mass fraction of every phase met."""
     names = sorted({ph.name for pt in path.points for ph in pt.phases})
-    cols = {c: np.array([getattr(pt, c) for pt in path.points], float) for c in _PATH_COLUMNS}
+    cols = {c: np.array([getattr(pt, attr) for pt in path.points], float) for c, attr in _PATH_COLUMNS}
     for n in names:
         cols[f"mass_fraction_{n}"] = np.array(
             [next((ph.mass_fraction for ph in pt.phases if ph.name == n), 0.0) for pt in path.points])

@@ -108,7 +108,7 @@ def _driving_force(kargs: tuple, x, target) -> np.ndarray:
     return kernels.driving_forces(_as_rows(x), *kargs, _as_rows(target))
 
 
-def _minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6, kargs=None):
+def minimize_driving_force(phase, starts, g0, t, p, mu_c, iters, gtol=1e-6, kargs=None):
     """Batched Newton minimization of D(x) on the simplex from ``starts`` (K, m).
 
     Rows converge independently (projected gradient times x below ``gtol`` J/mol).
@@ -158,9 +158,9 @@ def _start_pool(system: PhaseSystem, bulk: np.ndarray) -> tuple[np.ndarray, ...]
     if pools is None:
         if len(cache) >= 64:
             cache.clear()
+        # shared between solves: never written to (a solver appends by making new arrays); left writeable
+        # because numba compiles read-only arrays as a separate signature
         pools = tuple(np.vstack([_simplex_points(ph.model.size), _bulk_like(ph, bulk)]) for ph in system.solutions)
-        for arr in pools:
-            arr.setflags(write=False)
         cache[key] = pools
     return pools
 
@@ -220,6 +220,20 @@ def _solve_lp(cols: _Columns, bulk, mu_ref, programme: ColumnProgramme | None = 
     return res.x, mu_ref + scale * np.asarray(res.eqlin.marginals)
 
 
+class _LazyKernelArgs(dict):
+    """Kernel arguments per solution index, built on first use (a polish needs only the phases present)."""
+
+    def __init__(self, solver: _Solver) -> None:
+        super().__init__()
+        self._solver = solver
+
+    def __missing__(self, si: int) -> tuple:
+        sv = self._solver
+        ph = sv.s.solutions[si]
+        value = self[si] = _kernel_args(ph, sv.g0[ph.endmember_index], sv.t, sv.p)
+        return value
+
+
 class _Solver:
     def __init__(self, system: PhaseSystem, p, t, bulk, options: SolverOptions):
         self.s, self.p, self.t, self.opt = system, p, t, options
@@ -231,7 +245,7 @@ class _Solver:
         self.probes: dict = {}
         self.skip_check_rt = options.check_skip_rt
         self.programme = ColumnProgramme(self.bulk)
-        self.kargs = [_kernel_args(ph, self.g0[ph.endmember_index], self.t, self.p) for ph in system.solutions]
+        self.kargs = _LazyKernelArgs(self)
 
     def g0_of(self, phase: SolutionPhase):
         return self.g0[phase.endmember_index]
@@ -292,7 +306,7 @@ class _Solver:
                 continue
             if extra_starts and si in extra_starts:
                 starts = np.vstack([starts, extra_starts[si]])
-            x, dv, ev = _minimize_driving_force(
+            x, dv, ev = minimize_driving_force(
                 ph, starts, None, self.t, self.p, mu, iters or self.opt.newton_iter, kargs=self.kargs[si]
             )
             self.evals += ev
@@ -358,10 +372,19 @@ def _name_instances(phases):
 
 # --------------------------------------------------------------- polish stage
 def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
-    """Orthonormal basis (c, r) of the compositions the present phases span."""
-    rows = [solver.s.pure_stoich[[solver.s.pure_names.index(p.model)]] if p.solution_index < 0
-            else solver.s.solutions[p.solution_index].stoich for p in phases]
-    return span(np.vstack(rows))
+    """Orthonormal basis (c, r) of the compositions the present phases span (cached per phase set)."""
+    cache = solver.s.scratch.setdefault("assemblage_basis", {})
+    key = tuple(p.model for p in phases)
+    basis = cache.get(key)
+    if basis is None:
+        rows = [solver.s.pure_stoich[[solver.s.pure_names.index(p.model)]] if p.solution_index < 0
+                else solver.s.solutions[p.solution_index].stoich for p in phases]
+        basis = span(np.vstack(rows))
+        basis.setflags(write=False)
+        if len(cache) >= 512:
+            cache.clear()
+        cache[key] = basis
+    return basis
 
 
 def _polish_system(solver: _Solver, phases: list[PhaseState], z, basis, mu_perp):

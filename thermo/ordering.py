@@ -23,6 +23,8 @@ from functools import lru_cache
 import numpy as np
 from scipy.constants import R
 
+from thermo import kernels
+
 T_REF_K = 298.15
 
 
@@ -101,47 +103,22 @@ def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
     return g, gq, gqq, s, ds
 
 
-_GRID_ELEMENTS = 200_000  # grid-times-points block size of the order-parameter search
 _Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
 
 
 def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 40):
-    """Order parameter Q in [0, 1) minimizing the Bragg-Williams G (vectorized).
+    """Order parameter Q in [0, 1) minimizing the Bragg-Williams G (elementwise over broadcast inputs).
 
     A grid over Q brackets the global minimum; safeguarded Newton steps on
-    ∂G/∂Q (bisection when a step leaves the bracket) refine it to round-off.
+    ∂G/∂Q (bisection when a step leaves the bracket) refine it to round-off
+    (compiled: :func:`thermo.kernels.bragg_williams_order`).
     """
-    p, t, *args = np.broadcast_arrays(
+    arrays = np.broadcast_arrays(
         np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
     )
-    best = np.full(p.shape, np.inf)
-    idx = np.zeros(p.shape, int)
-    chunk = max(1, _GRID_ELEMENTS // max(p.size, 1))  # grid values per block: memory stays bounded
-    for start in range(0, _Q_GRID.size, chunk):
-        qs = _Q_GRID[start: start + chunk].reshape((-1,) + (1,) * p.ndim)
-        g = _bw_g(qs, p, t, *args)[0]
-        k = np.argmin(g, axis=0)
-        gk = np.take_along_axis(g, k[None], axis=0)[0]
-        better = gk < best
-        best = np.where(better, gk, best)
-        idx = np.where(better, start + k, idx)
-    lo = _Q_GRID[np.clip(idx - 1, 0, None)]
-    hi = _Q_GRID[np.clip(idx + 1, None, _Q_GRID.size - 1)]
-    q = _Q_GRID[idx]
-    done = np.zeros(q.shape, bool)
-    for _ in range(iterations):
-        _, gq, gqq, *_ = _bw_g(q, p, t, *args)
-        lo = np.where(gq < 0.0, q, lo)
-        hi = np.where(gq < 0.0, hi, q)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            newton = q - gq / gqq
-        inside = (newton >= lo) & (newton <= hi) & np.isfinite(newton)
-        q_new = np.where(done, q, np.where(inside, newton, 0.5 * (lo + hi)))
-        done |= np.abs(q_new - q) <= 1e-13
-        q = q_new
-        if done.all():
-            break
-    return q
+    flat = [np.ascontiguousarray(a, dtype=float).ravel() for a in arrays]
+    q = kernels.bragg_williams_order(*flat, _Q_GRID, R, iterations)
+    return q.reshape(arrays[0].shape)
 
 
 def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):

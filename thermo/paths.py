@@ -48,6 +48,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from thermo.assemblage import PhaseProperties
 from thermo.energetics import (
     Derivatives,
     State,
@@ -81,13 +82,16 @@ class PathSettings:
 
 @dataclass(frozen=True)
 class PhaseRecord:
-    """One phase at a row of a path."""
+    """One phase at a row of a path: its fractions of the material at the row and all its properties."""
 
     name: str
     is_liquid: bool
     mass_fraction: float  # of the material at the row
     composition_wt_percent: dict[str, float]
     density_kg_per_m3: float
+    volume_fraction: float  # of the material at the row
+    properties: PhaseProperties  # molar properties, endmember fractions, amount [mol] in the row's material
+    system_mass_kg: float  # mass of the material at the row (amount_mol / system_mass_kg = mol per kg)
 
 
 @dataclass(frozen=True)
@@ -181,7 +185,8 @@ def _point(state: State, kind: str, deriv: Derivatives, step: StepIntegral | Non
     pr = state.props
     sig = set(state.signature)
     phases = tuple(
-        PhaseRecord(p.name, p.is_liquid, p.mass_kg / pr.mass_kg, p.composition_wt_percent, p.density_kg_per_m3)
+        PhaseRecord(p.name, p.is_liquid, p.mass_kg / pr.mass_kg, p.composition_wt_percent, p.density_kg_per_m3,
+                    pr.volume_fraction(p), p, pr.mass_kg)
         for p in pr.phases if p.name in sig
     )
     z = 0.0

@@ -31,14 +31,13 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq, minimize
+from scipy.optimize import brentq
 
-from thermo import solutions as sol
 from thermo.endmembers import standard_state
 from thermo.energetics import State, phase_oxide_mol, solve_state
 from thermo.equilibrium import Problem
 from thermo.errors import CompositionError, ConvergenceError, InputError
-from thermo.minimize import Equilibrium, PhaseState, equilibrate
+from thermo.minimize import Equilibrium, PhaseState, equilibrate, minimize_driving_force
 from thermo.phases import PhaseSystem, build_system
 from thermo.validity import check_conditions
 
@@ -87,20 +86,12 @@ def _remap(eq: Equilibrium, system: PhaseSystem) -> Equilibrium | None:
 def _solution_driving_force(sp, g0, temperature_k, pressure_pa, mu, start) -> float:
     """min over the composition simplex of D(p) = Σ p_i (μ_i(p) − a_i·μ) [J/mol], from ``start``.
 
-    p = softmax(y); ∂D/∂y_k = p_k (g_k − D) with g = μ(p) − a·μ (Gibbs–Duhem).
+    Newton's method on the simplex with exact Hessians (:func:`thermo.minimize.minimize_driving_force`),
+    converged until |p_i (g_i − ḡ)| < 1e-10 J/mol (g = μ(p) − a·μ).
     """
-    target = sp.stoich @ mu
-
-    def fun(y):
-        p = np.exp(y - y.max())
-        p /= p.sum()
-        g = sol.chemical_potentials(sp.model, p, g0, temperature_k, pressure_pa) - target
-        d = float(p @ g)
-        return d, p * (g - d)
-
-    y0 = np.log(np.clip(start / start.sum(), 1e-300, None))
-    res = minimize(fun, y0, jac=True, method="BFGS", options={"gtol": 1e-9, "maxiter": 400})
-    return float(res.fun)
+    x0 = np.clip(np.asarray(start, float) / np.sum(start), 1e-12, None)
+    _, d, _ = minimize_driving_force(sp, x0[None], g0, temperature_k, pressure_pa, mu, 200, gtol=1e-10)
+    return float(d[0])
 
 
 def driving_force(system: PhaseSystem, model: str, eq: Equilibrium, start=None) -> float:

@@ -48,16 +48,20 @@ FIELDS: dict[str, tuple[str, str]] = {
     "specific_enthalpy_j_per_kg": ("J kg-1", "specific enthalpy of the equilibrium assemblage"),
     "specific_entropy_j_per_kg_k": ("J kg-1 K-1", "specific entropy of the equilibrium assemblage"),
     "density_kg_per_m3": ("kg m-3", "density of the equilibrium assemblage"),
-    "cp_frozen_j_per_kg_k": ("J kg-1 K-1", "intrinsic isobaric heat capacity (phase amounts and compositions fixed)"),
-    "cp_effective_j_per_kg_k": ("J kg-1 K-1", "effective isobaric heat capacity dh/dT (latent heat included)"),
-    "alpha_frozen_per_k": ("K-1", "intrinsic thermal expansivity (phase amounts and compositions fixed)"),
-    "alpha_effective_per_k": ("K-1", "effective thermal expansivity (1/v) dv/dT (melting volume change included)"),
+    "heat_capacity_frozen_j_per_kg_k": (
+        "J kg-1 K-1", "intrinsic isobaric heat capacity (phase amounts and compositions fixed)"),
+    "heat_capacity_effective_j_per_kg_k": (
+        "J kg-1 K-1", "effective isobaric heat capacity dh/dT (latent heat included)"),
+    "thermal_expansivity_frozen_per_k": (
+        "K-1", "intrinsic thermal expansivity (phase amounts and compositions fixed)"),
+    "thermal_expansivity_effective_per_k": (
+        "K-1", "effective thermal expansivity (1/v) dv/dT (melting volume change included)"),
     "melt_fraction": ("1", "mass fraction of liquid"),
     "melt_fraction_derivative_per_k": ("K-1", "temperature derivative of the melt fraction along the isobar"),
 }
 #: Fields of the enthalpy- and entropy-indexed forms (besides the other index).
-INDEXED_FIELDS = ("temperature_k", "density_kg_per_m3", "cp_effective_j_per_kg_k", "cp_frozen_j_per_kg_k",
-                  "melt_fraction")
+INDEXED_FIELDS = ("temperature_k", "density_kg_per_m3", "heat_capacity_effective_j_per_kg_k",
+                  "heat_capacity_frozen_j_per_kg_k", "melt_fraction")
 REFERENCE_STATE = ("specific enthalpy and entropy per kg of the bulk composition, referred to the elements in their "
                    "reference states at 298.15 K and 1 bar (the Holland & Powell 2011 convention of the dataset)")
 INDEX_ORDER = ("C order, temperature fastest: by_temperature[i_pressure, i_temperature]; "
@@ -100,9 +104,10 @@ def _values(state: State, problem: Problem, delta_k: float) -> dict[str, float]:
     return {
         "cp_effective_slope": d.cp_effective_slope_j_per_kg_k2,
         "specific_enthalpy_j_per_kg": p.h_j_per_kg, "specific_entropy_j_per_kg_k": p.s_j_per_kg_k,
-        "density_kg_per_m3": p.density_kg_per_m3, "cp_frozen_j_per_kg_k": p.cp_frozen_j_per_kg_k,
-        "cp_effective_j_per_kg_k": d.cp_effective_j_per_kg_k, "alpha_frozen_per_k": p.alpha_frozen_per_k,
-        "alpha_effective_per_k": d.alpha_effective_per_k, "melt_fraction": p.melt_fraction,
+        "density_kg_per_m3": p.density_kg_per_m3, "heat_capacity_frozen_j_per_kg_k": p.cp_frozen_j_per_kg_k,
+        "heat_capacity_effective_j_per_kg_k": d.cp_effective_j_per_kg_k,
+        "thermal_expansivity_frozen_per_k": p.alpha_frozen_per_k,
+        "thermal_expansivity_effective_per_k": d.alpha_effective_per_k, "melt_fraction": p.melt_fraction,
         "melt_fraction_derivative_per_k": d.melt_fraction_derivative_per_k,
     }
 
@@ -165,7 +170,7 @@ def _integral_residual(temperatures_k, grid, points) -> float:
             total += v1["specific_enthalpy_j_per_kg"] - v0["specific_enthalpy_j_per_kg"]
         else:
             dt = t1 - t0
-            total += 0.5 * dt * (v0["cp_effective_j_per_kg_k"] + v1["cp_effective_j_per_kg_k"])
+            total += 0.5 * dt * (v0["heat_capacity_effective_j_per_kg_k"] + v1["heat_capacity_effective_j_per_kg_k"])
             total -= dt * dt / 12.0 * (v1["cp_effective_slope"] - v0["cp_effective_slope"])
     dh = grid[-1]["specific_enthalpy_j_per_kg"] - grid[0]["specific_enthalpy_j_per_kg"]
     return abs(total - dh) / abs(dh)

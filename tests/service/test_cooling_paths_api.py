@@ -11,16 +11,19 @@ from __future__ import annotations
 
 import xml.etree.ElementTree as ET
 
+import numpy as np
 import pytest
 
 from service import create_app
 from service.cooling_paths import request_parameters
 from service.provenance import request_hash
 from service.schemas import CoolingPathRequest
+from service.serializers import path_step_json
 from tests.service.team_support import make_app
 from tests.service.test_openapi_contract import response_validator
 from thermo.dataset import DEFAULT_DATASET_ID
 from thermo.equilibrium import prepare
+from thermo.formats import path_to_csv, read_csv
 from thermo.paths import cooling_path
 
 PATH = "/v1/cooling-paths"
@@ -296,3 +299,16 @@ def test_a_body_that_is_not_json_is_400_and_a_form_is_415(client):
     response = client.post(PATH, data="{not json", headers={"Content-Type": "application/json"})
     assert response.status_code == 400 and response.get_json()["type"].endswith("/malformed-request")
     assert client.post(PATH, data={"a": "b"}).status_code == 415
+
+
+def test_path_csv_columns_carry_the_json_step_names_and_numbers():
+    """The CSV of a path (CLI --format csv) names its columns as the JSON steps do, with the same values."""
+    path = core_path(THROUGH_INVARIANT)
+    cols = read_csv(path_to_csv(path))["columns"]
+    steps = [path_step_json(p) for p in path.points]
+    numeric = [c for c in cols if not c.startswith("mass_fraction_")]
+    assert {"heat_capacity_effective_j_per_kg_k", "thermal_expansivity_frozen_per_k", "latent_heat_j_per_kg"} <= set(
+        numeric)
+    for c in numeric:
+        assert c in steps[0], c
+        np.testing.assert_array_equal(cols[c], [s[c] for s in steps])

@@ -97,18 +97,18 @@ def test_the_invariant_appears_as_boundary_points_on_both_sides(result):
 
 
 def test_variable_selection_and_no_boundary_points(cached_app):
-    body = {**BODY, "variables": ["density_kg_per_m3", "cp_effective_j_per_kg_k"], "boundary_points": False,
+    body = {**BODY, "variables": ["density_kg_per_m3", "heat_capacity_effective_j_per_kg_k"], "boundary_points": False,
             "form": "enthalpy"}
     response = post(cached_app, JSON, body)
     out = response.get_json()
-    assert set(out["by_temperature"]) == {"density_kg_per_m3", "cp_effective_j_per_kg_k", "melt_fraction"}
+    assert set(out["by_temperature"]) == {"density_kg_per_m3", "heat_capacity_effective_j_per_kg_k", "melt_fraction"}
     assert out["boundary_points"] is None and out["form"] == "enthalpy"
     as_csv = parse_csv(post(cached_app, CSV, body).get_data(as_text=True))
     assert as_csv["header"]["form"] == "enthalpy" and "temperature_k" in as_csv["columns"]
     np.testing.assert_array_equal(as_csv["columns"]["temperature_k"],
                                   as_array(out["by_enthalpy"]["temperature_k"]).ravel())
     with netcdf_file(io.BytesIO(post(cached_app, NETCDF, body).data), "r", mmap=False) as nc:
-        assert "cp_frozen_j_per_kg_k" not in nc.variables and "density_kg_per_m3" in nc.variables
+        assert "heat_capacity_frozen_j_per_kg_k" not in nc.variables and "density_kg_per_m3" in nc.variables
         assert nc.dimensions["boundary_point"] in (0, None)
 
 

@@ -136,7 +136,7 @@ def test_table_dict_is_json_ready_with_units_and_index_order(table):
     text = json.dumps(d, allow_nan=False)
     back = json.loads(text)
     assert np.array_equal(np.array(back["by_temperature"]["melt_fraction"]), table.by_temperature["melt_fraction"])
-    assert back["units"]["cp_effective_j_per_kg_k"] == "J kg-1 K-1"
+    assert back["units"]["heat_capacity_effective_j_per_kg_k"] == "J kg-1 K-1"
     assert "temperature fastest" in back["index_order"] and back["provenance"] == PROVENANCE
 
 
@@ -147,7 +147,7 @@ def test_path_serialisations_round_trip(path):
     parsed = read_csv(path_to_csv(path, PROVENANCE))
     cols = parsed["columns"]
     assert np.array_equal(cols["temperature_k"], [p.temperature_k for p in path.points])
-    assert np.array_equal(cols["step_latent_heat_j_per_kg_initial"],
-                          [p.step_latent_heat_j_per_kg_initial for p in path.points])
+    assert np.array_equal(cols["latent_heat_j_per_kg"], [p.step_latent_heat_j_per_kg_initial for p in path.points])
+    assert np.array_equal(cols["heat_capacity_effective_j_per_kg_k"], [p.cp_effective_j_per_kg_k for p in path.points])
     assert np.allclose(cols["mass_fraction_liquid"], [p.melt_fraction for p in path.points], atol=1e-12)
     assert parsed["header"]["mode"] == "equilibrium" and parsed["header"]["solidus_k"] == path.solidus_k

@@ -17,7 +17,7 @@ from thermo import kernels
 from thermo import solutions as sol
 from thermo.endmembers import standard_state
 from thermo.equilibrium import prepare
-from thermo.minimize import _kernel_args, _minimize_driving_force
+from thermo.minimize import _kernel_args, minimize_driving_force
 
 # Invented demo bulk (Kestrel IV scenario, ../shared/DESIGN.md §5).
 BASALT_LIKE = {"SiO2": 50.0, "Al2O3": 15.0, "FeO": 10.0, "MgO": 8.0, "CaO": 12.0, "Na2O": 3.0}
@@ -67,9 +67,21 @@ def test_compiled_driving_force_minimum_equals_the_numpy_reference(ph, g0, p, t)
     mu_x0 = sol.chemical_potentials(ph.model, x0, g0, t, p)
     mu_c = np.linalg.lstsq(ph.stoich, mu_x0, rcond=None)[0] - 1e3
     starts = rng.dirichlet(np.ones(m), size=6)
-    x_k, d_k, _ = _minimize_driving_force(ph, starts, g0, t, p, mu_c, 60)
+    x_k, d_k, _ = minimize_driving_force(ph, starts, g0, t, p, mu_c, 60)
     x_r, d_r, _ = reference.minimize_driving_force(ph, starts, g0, t, p, mu_c, 60)
     assert np.all(np.isfinite(d_k))
     assert d_k.min() <= d_r.min() + 1e-6
     assert np.abs(d_k.min() - d_r.min()) <= max(1e-6, 1e-9 * abs(d_r.min()))
     assert np.abs(x_k[np.argmin(d_k)] - x_r[np.argmin(d_r)]).max() < 1e-4
+
+
+def test_warm_up_compiles_the_signatures_the_minimizer_uses():
+    """After warm_up() a full equilibrium adds no new compiled signature (no request pays compilation)."""
+    from thermo.equilibrium import solve_point
+
+    kernels.warm_up()
+    dispatchers = [kernels.chemical_potentials, kernels.chemical_potentials_jacobian, kernels.driving_forces,
+                   kernels.minimize_driving_force, kernels.bragg_williams_order]
+    before = [len(d.signatures) for d in dispatchers]
+    solve_point(prepare(BASALT_LIKE), 2.0, 1500.0)
+    assert [len(d.signatures) for d in dispatchers] == before

@@ -102,10 +102,10 @@ def test_effective_and_frozen_cp_differ_only_where_crystals_form(serial):
     for i in range(len(PRESSURES_GPA)):
         t = serial.temperature_k
         outside = (t < serial.solidus["temperature_k"][i] - 0.1) | (t > serial.liquidus["temperature_k"][i] + 0.1)
-        cp_f, cp_e = bt["cp_frozen_j_per_kg_k"][i], bt["cp_effective_j_per_kg_k"][i]
+        cp_f, cp_e = bt["heat_capacity_frozen_j_per_kg_k"][i], bt["heat_capacity_effective_j_per_kg_k"][i]
         np.testing.assert_allclose(cp_e[outside], cp_f[outside], rtol=1e-6)
-        np.testing.assert_allclose(bt["alpha_effective_per_k"][i][outside], bt["alpha_frozen_per_k"][i][outside],
-                                   rtol=1e-5)
+        alpha_e, alpha_f = bt["thermal_expansivity_effective_per_k"][i], bt["thermal_expansivity_frozen_per_k"][i]
+        np.testing.assert_allclose(alpha_e[outside], alpha_f[outside], rtol=1e-5)
         assert np.all(cp_e[~outside] > cp_f[~outside]) and np.all(bt["melt_fraction_derivative_per_k"][i][~outside] > 0)
 
 
