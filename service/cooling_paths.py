@@ -59,7 +59,7 @@ def compute_cooling_path(req: dict[str, Any], progress: Any = None) -> dict[str,
     """The cooling-path result for a loaded :class:`CoolingPathRequest` (also run by job workers)."""
     problem = prepare_problem(req)
     path = cooling_path(problem, req["pressure_gpa"], req["start_k"], req["stop_k"], req["step_k"], req["mode"],
-                        trapped_melt_fraction(req) or 0.0)
+                        trapped_melt_fraction(req) or 0.0, progress=progress)
     provenance = build_provenance(problem.dataset, request_parameters(req), problem_warnings(problem, req["phases"]))
     return {
         **cooling_path_json(path),

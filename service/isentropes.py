@@ -51,7 +51,7 @@ def compute_isentrope(req: dict[str, Any], progress: Any = None) -> dict[str, An
     """The isentrope for a loaded :class:`IsentropeRequest` (also run by job workers)."""
     problem = prepare_problem(req)
     iso = isentrope(problem, axis_values(req["pressure_gpa"]), potential_temperature_k=req["potential_temperature_k"],
-                    specific_entropy_j_per_kg_k=req["specific_entropy_j_per_kg_k"])
+                    specific_entropy_j_per_kg_k=req["specific_entropy_j_per_kg_k"], progress=progress)
     provenance = build_provenance(problem.dataset, request_parameters(req), problem_warnings(problem, req["phases"]))
     return {
         **isentrope_json(iso),

@@ -127,7 +127,7 @@ def compute_table(req: dict[str, Any], progress: Any = None) -> dict[str, Any]:
     pressures, temps = axis_values(req["pressure_gpa"]), axis_values(req["temperature_k"])
     settings = TableSettings(workers=table_processes(len(pressures)))
     table = property_table(problem, pressures, temps[0], temps[-1], len(temps), n_enthalpy=req["indexed_count"],
-                           n_entropy=req["indexed_count"], settings=settings)
+                           n_entropy=req["indexed_count"], settings=settings, progress=progress)
     warnings = problem_warnings(problem, req["phases"]) + failed_checks(table.checks)
     provenance = build_provenance(problem.dataset, request_parameters(req), warnings)
     return {

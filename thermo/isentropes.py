@@ -17,6 +17,7 @@ flagged in ``on_invariant``.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -102,6 +103,7 @@ def isentrope(
     specific_entropy_j_per_kg_k: float | None = None,
     xtol_k: float = 1e-7,
     bracket_step_k: float = 20.0,
+    progress: Callable[[int, int], None] | None = None,
 ) -> Isentrope:
     """Temperature, melt fraction, enthalpy and density along an isentrope.
 
@@ -119,6 +121,8 @@ def isentrope(
         Root tolerance in T [K].
     bracket_step_k : float
         First step [K] of the bracket search around the previous temperature.
+    progress : callable, optional
+        Called as ``progress(pressures_done, pressures_total)`` after every pressure.
 
     Raises
     ------
@@ -141,12 +145,14 @@ def isentrope(
         s0 = float(specific_entropy_j_per_kg_k)
         guess = 0.5 * sum(ds.temperature_range_k)
     rows = []
-    for pressure in p:
+    for k, pressure in enumerate(p, 1):
         f = _EntropyRoot(problem, float(pressure), s0, warm)
         a, b = _bracket(f, guess, bracket_step_k, ds.temperature_range_k)
         t = a if f(a) == 0.0 else float(brentq(f, a, b, xtol=xtol_k))
         rows.append(_point(f, t, xtol_k))
         warm, guess = f.state(t), t
+        if progress is not None:
+            progress(k, len(p))
     cols = list(zip(*rows, strict=True))
     return Isentrope(
         specific_entropy_j_per_kg_k=s0, potential_temperature_k=potential_temperature_k,

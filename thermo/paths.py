@@ -31,8 +31,9 @@ end-corrected trapezoid rule with the rows' own path derivatives
 (equilibrium mode; no extra states) or by Simpson's rule on sub-step states
 (fractional mode, whose refreshed parcel has no derivative on the step's
 branch); latent heat = Q − sensible = ∫(cp_eff − cp_frozen) dT; ∫T dS =
-[T S] − ∫S dT (tested against Q). cp_eff at each row comes from converged
-states at T ± δ (:func:`thermo.energetics.path_derivatives`).
+[T S] − ∫S dT (tested against Q). cp_eff at each row is exact, by implicit
+differentiation of the row's equilibrium (one-sided differences of converged
+states next to a boundary; :func:`thermo.energetics.path_derivatives`).
 
 Units: T [K], P [GPa] at the interface; specific quantities per kg of the
 material present at the row (``_per_kg``); extensive ones per kg of the
@@ -44,6 +45,7 @@ at 298.15 K and 1 bar, Holland & Powell 2011).
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -67,6 +69,8 @@ from thermo.saturation import Boundary, BoundaryFinder, SaturationEvent, all_liq
 from thermo.validity import check_conditions
 
 MODES = ("equilibrium", "fractional")
+#: A progress callback: (units done, units in all).
+Progress = Callable[[int, int], None]
 
 
 @dataclass(frozen=True)
@@ -395,6 +399,7 @@ def cooling_path(
     mode: str = "equilibrium",
     trapped_melt_fraction: float = 0.0,
     settings: PathSettings | None = None,
+    progress: Progress | None = None,
 ) -> CoolingPath:
     """Isobaric cooling path with exact energetics and root-found phase boundaries.
 
@@ -412,6 +417,9 @@ def cooling_path(
     trapped_melt_fraction : float
         Fractional mode: melt mass fraction of each cumulate layer, 0 ≤ f < 1.
     settings : PathSettings, optional
+    progress : callable, optional
+        Called as ``progress(steps_done, steps_total)`` after every grid step; an exception it
+        raises (a cancelled job) stops the path.
 
     Returns
     -------
@@ -434,8 +442,10 @@ def cooling_path(
     grid = _grid(start_temperature_k, stop_temperature_k, step_k)
     run = _PathRun(problem, pressure_gpa, mode, trapped_melt_fraction, cfg)
     run.start(float(grid[0]))
-    for t in grid[1:]:
+    for k, t in enumerate(grid[1:], 1):
         run.advance_to(float(t))
+        if progress is not None:
+            progress(k, len(grid) - 1)
     return run.result(pressure_gpa, time.perf_counter() - t0)
 
 

@@ -31,7 +31,8 @@ from __future__ import annotations
 import itertools
 import multiprocessing
 import os
-from concurrent.futures import ProcessPoolExecutor
+from collections.abc import Callable
+from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -241,15 +242,32 @@ def check_table(by_temperature: dict, solidus_k, liquidus_k, integral_residuals,
 
 
 # ------------------------------------------------------------------ main
-def _rows(problem, pressures, temps, settings) -> list[dict]:
+def _rows(problem, pressures, temps, settings, progress=None) -> list[dict]:
+    """One row per pressure, in order; ``progress(nodes_done, nodes_total)`` after each finished row."""
     tasks = [(problem, float(p), temps, settings.delta_k) for p in pressures]
     workers = settings.workers or os.cpu_count() or 1
+    total = len(tasks) * len(temps)
+
+    def report(rows_done: int) -> None:
+        if progress is not None:
+            progress(rows_done * len(temps), total)
+
     if workers == 1 or len(tasks) == 1:
-        rows = [_row_task(t) for t in tasks]
+        rows = []
+        for t in tasks:
+            rows.append(_row_task(t))
+            report(len(rows))
     else:
         ctx = multiprocessing.get_context("spawn")
         with ProcessPoolExecutor(max_workers=min(workers, len(tasks)), mp_context=ctx) as pool:
-            rows = list(pool.map(_row_task, tasks))
+            futures = [pool.submit(_row_task, t) for t in tasks]
+            try:
+                for done, _ in enumerate(as_completed(futures), 1):
+                    report(done)
+            except BaseException:  # a cancelled job: rows not started never start (running ones finish)
+                pool.shutdown(wait=False, cancel_futures=True)
+                raise
+            rows = [fut.result() for fut in futures]
     for r in rows:
         r["temperatures_k"] = temps
     return rows
@@ -272,6 +290,7 @@ def property_table(
     n_enthalpy: int | None = None,
     n_entropy: int | None = None,
     settings: TableSettings | None = None,
+    progress: Callable[[int, int], None] | None = None,
 ) -> PropertyTable:
     """Tables of h, s, ρ, cp and α (frozen and effective), φ and dφ/dT over (P, T), with T(P, h) and T(P, s).
 
@@ -289,6 +308,9 @@ def property_table(
         Nodes of the regular h and s axes (default: ``n_temperatures``). The axes
         span the range common to all pressures.
     settings : TableSettings, optional
+    progress : callable, optional
+        Called as ``progress(nodes_done, nodes_total)`` as pressure rows finish; an exception it raises
+        (a cancelled job) cancels the rows not started and stops the table.
 
     Returns
     -------
@@ -302,7 +324,7 @@ def property_table(
         raise InputError("temperature_k", "need t_max_k > t_min_k and at least 2 temperatures")
     check_conditions(problem.dataset, pressures, [t_min_k, t_max_k])
     temps = np.linspace(t_min_k, t_max_k, n_temperatures)
-    rows = _rows(problem, pressures, temps, cfg)
+    rows = _rows(problem, pressures, temps, cfg, progress)
     by_t = {f: np.array([r["values"][f] for r in rows]) for f in FIELDS}
     h_form = _indexed(rows, "specific_enthalpy_j_per_kg", "specific_entropy_j_per_kg_k", n_enthalpy or n_temperatures)
     s_form = _indexed(rows, "specific_entropy_j_per_kg_k", "specific_enthalpy_j_per_kg", n_entropy or n_temperatures)

@@ -312,3 +312,15 @@ def test_path_csv_columns_carry_the_json_step_names_and_numbers():
     for c in numeric:
         assert c in steps[0], c
         np.testing.assert_array_equal(cols[c], [s[c] for s in steps])
+
+
+def test_a_path_job_reports_progress_in_the_units_of_its_size():
+    """The job's points_total is the path's step count; the core reports (k, steps) after each step."""
+    from service.cooling_paths import compute_cooling_path
+    from service.schemas import path_step_count
+
+    req = CoolingPathRequest().load(THROUGH_INVARIANT)
+    calls = []
+    compute_cooling_path(req, progress=lambda done, total: calls.append((done, total)))
+    size = path_step_count(req["start_k"], req["stop_k"], req["step_k"])
+    assert calls[-1] == (size, size) and len(calls) == size

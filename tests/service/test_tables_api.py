@@ -248,3 +248,18 @@ def test_grid_limit_is_a_server_setting(tmp_path):
     assert response.status_code == 422
     assert "2 pressures x 3 temperatures = 6 grid nodes; the limit is 5 nodes per table" in \
         problem_fields(response)["temperature_k"]
+
+
+def test_a_table_job_reports_progress_in_grid_nodes():
+    """The job's points_total is pressures × temperatures; the core reports nodes as rows finish."""
+    from service.schemas import TableRequest, axis_length
+    from service.tables import compute_table
+
+    body = {"composition": {"basis": "wt_percent", "oxides": {"CaO": 18.5, "MgO": 10.4, "SiO2": 49.9,
+                                                               "Al2O3": 21.2}},
+            "pressure_gpa": [0.0001, 0.5], "temperature_k": {"start": 1500.0, "stop": 1700.0, "count": 5}}
+    req = TableRequest().load(body)
+    calls = []
+    compute_table(req, progress=lambda done, total: calls.append((done, total)))
+    size = axis_length(req["pressure_gpa"]) * axis_length(req["temperature_k"])
+    assert calls[-1] == (size, size) and [c[0] for c in calls] == [5, 10]
