@@ -166,25 +166,53 @@ def _start_pool(system: PhaseSystem, bulk: np.ndarray) -> tuple[np.ndarray, ...]
 
 
 # ------------------------------------------------------------------ LP stage
-@dataclass
 class _Columns:
-    comp: list  # oxide composition per column (c,)
-    g: list
-    owner: list  # (-1, pure index) or (solution index, endmember fractions)
+    """Candidate columns of the linear programme: oxide composition (c,), molar G and owner each.
 
-    def add(self, comp, g, owner):
-        self.comp.append(np.asarray(comp, float))
-        self.g.append(float(g))
-        self.owner.append(owner)
+    Owner: (-1, pure index) or (solution index, endmember fractions). Compositions and G live in
+    growing arrays so that the programme reads them without copying column by column.
+    """
+
+    def __init__(self, n_components: int) -> None:
+        self._comp = np.empty((512, n_components))
+        self._g = np.empty(512)
+        self.n = 0
+        self.owner: list = []
+
+    @property
+    def comp(self) -> np.ndarray:
+        return self._comp[: self.n]
+
+    @property
+    def g(self) -> np.ndarray:
+        return self._g[: self.n]
+
+    def add_block(self, comp, g, owners: list) -> None:
+        comp = np.atleast_2d(np.asarray(comp, float))
+        k = len(comp)
+        if self.n + k > len(self._g):
+            size = max(2 * len(self._g), self.n + k)
+            self._comp = np.vstack([self._comp[: self.n], np.empty((size - self.n, self._comp.shape[1]))])
+            self._g = np.concatenate([self._g[: self.n], np.empty(size - self.n)])
+        self._comp[self.n: self.n + k] = comp
+        self._g[self.n: self.n + k] = g
+        self.n += k
+        self.owner.extend(owners)
+
+    def add(self, comp, g, owner) -> None:
+        self.add_block(comp, [float(g)], [owner])
 
     def prune(self, mu, lam, limit: float) -> np.ndarray:
         """Drop columns whose reduced cost G - a·μ exceeds ``limit`` (never basic ones); returns the kept mask."""
-        reduced = np.array(self.g) - np.array(self.comp) @ mu
+        reduced = self.g - self.comp @ mu
         # pure phases and exact endmember columns always stay: they keep bulks on a join representable
         anchor = np.array([o[0] == -1 or np.count_nonzero(o[1]) == 1 for o in self.owner])
         keep = (reduced <= limit) | (lam > 0.0) | anchor
-        for name in ("comp", "g", "owner"):
-            setattr(self, name, [v for v, k in zip(getattr(self, name), keep, strict=True) if k])
+        kept = int(keep.sum())
+        self._comp[:kept] = self.comp[keep]
+        self._g[:kept] = self.g[keep]
+        self.n = kept
+        self.owner = [o for o, k in zip(self.owner, keep, strict=True) if k]
         return keep
 
 
@@ -194,14 +222,14 @@ def _solve_lp(cols: _Columns, bulk, mu_ref, programme: ColumnProgramme | None = 
     The persistent HiGHS model of ``programme`` is used first; degenerate programmes (bulks on a
     join) that it does not solve to optimality go to scipy's HiGHS solvers in turn.
     """
-    comp = np.array(cols.comp)
+    comp = cols.comp
     try:
         if programme is not None:
-            solved = programme.solve(comp, np.array(cols.g), mu_ref)
+            solved = programme.solve(comp, cols.g, mu_ref)
             if solved is not None:
                 return solved
         a = comp.T
-        g = np.array(cols.g) - mu_ref @ a
+        g = cols.g - mu_ref @ a
         scale = max(1.0, float(np.abs(g).max()))
         for method in ("highs", "highs-ds", "highs-ipm"):
             options = HIGHS_OPTIONS if method == "highs" else {}
@@ -261,18 +289,17 @@ class _Solver:
         return np.sum(x * kernels.chemical_potentials(x, *self.kargs[si]), axis=1) / np.sum(x, axis=1)
 
     def initial_columns(self, warm_phases):
-        cols = _Columns([], [], [])
-        for k in range(self.s.n_pure):
-            cols.add(self.s.pure_stoich[k], self.g0[k], (-1, k))
+        cols = _Columns(len(self.bulk))
+        n_pure = self.s.n_pure
+        cols.add_block(self.s.pure_stoich, self.g0[:n_pure], [(-1, k) for k in range(n_pure)])
         for si, ph in enumerate(self.s.solutions):
             pts = self.pool[si]
             gs = self.molar_gibbs(si, pts)
             self.evals += len(pts)
-            for x, g in zip(pts, gs, strict=True):
-                cols.add(x @ ph.stoich, g, (si, x))
+            cols.add_block(pts @ ph.stoich, gs, [(si, x) for x in pts])
             # exact pure-endmember columns (activity 1): bulks on a solution's boundary stay reachable
-            for i in range(ph.model.size):
-                cols.add(ph.stoich[i], self.g0_of(ph)[i], (si, np.eye(ph.model.size)[i]))
+            eye = np.eye(ph.model.size)
+            cols.add_block(ph.stoich, self.g0_of(ph), [(si, e) for e in eye])
         for wp in warm_phases or []:
             if wp.solution_index >= 0:
                 comp, g = self.solution_column(wp.solution_index, wp.amount_mol)
@@ -538,11 +565,17 @@ def _probes(found) -> dict:
     """Distinct local minimizers of each solution's driving force from a check (seeds for the next one)."""
     out = {}
     for si, (x, dv) in enumerate(found):
-        keep = []
-        for j in np.argsort(dv):
-            if all(np.abs(x[j] - x[k]).max() > 1e-3 for k in keep):
+        order = np.argsort(dv)
+        xs = x[order]
+        # pairwise max-norm distances; a point is kept if no better-ranked kept point is within 1e-3
+        close = np.abs(xs[:, None, :] - xs[None, :, :]).max(axis=2) <= 1e-3
+        keep: list[int] = []
+        for j in range(len(xs)):
+            if not close[j, keep].any():
                 keep.append(j)
-        out[si] = x[keep[:4]]
+                if len(keep) == 4:
+                    break
+        out[si] = xs[keep]
     return out
 
 
@@ -611,7 +644,7 @@ def equilibrate(
             diag["polished"] = True
             return _finish(solver, phases, mu, found, pure_d, diag, t0)
     cols = solver.initial_columns(warm.phases if warm is not None and warm.system is system else None)
-    mu = np.linalg.lstsq(np.array(cols.comp), np.array(cols.g), rcond=None)[0]
+    mu = np.linalg.lstsq(cols.comp, cols.g, rcond=None)[0]
     previous_set = None
     setbacks = 0
     for outer in range(opt.max_outer):

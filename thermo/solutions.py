@@ -76,9 +76,18 @@ class SolutionModel:
 
         B_ij = 2W_ij/(α_i + α_j) for i < j (Holland & Powell 2003, Contrib. Mineral. Petrol. 145:492).
         """
-        b = 2.0 * self.w(temperature_k, pressure_pa) / (self.alpha[:, None] + self.alpha[None, :])
-        cmat = np.ascontiguousarray(b + b.T, dtype=float)
-        return (*self._static_kernel_args, cmat, bool(np.any(cmat)))
+        static, vanlaar = self._static_kernel_args, self._van_laar_factor
+        if vanlaar is None:
+            return (*static, np.zeros((self.size, self.size)), False)
+        b = self.w(temperature_k, pressure_pa) * vanlaar
+        return (*static, b + b.T, True)
+
+    @cached_property
+    def _van_laar_factor(self) -> np.ndarray | None:
+        """2/(α_i + α_j), or None for a model without interaction energies."""
+        if not (np.any(self.w_h) or np.any(self.w_s) or np.any(self.w_v)):
+            return None
+        return 2.0 / (self.alpha[:, None] + self.alpha[None, :])
 
     def restrict(self, keep: list[str]) -> SolutionModel:
         """The model restricted to the endmembers in ``keep`` (others absent)."""
