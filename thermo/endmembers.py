@@ -196,7 +196,7 @@ def standard_state(params: EndmemberParameters, pressure_pa, temperature_k) -> S
             fn = _liquid_volume_terms if sub.is_liquid[0] else _solid_volume_terms
             vals = fn(p, t, sub)
             for key, val in zip(out, vals, strict=True):
-                out[key][..., mask] = np.broadcast_to(val, (*shape[:-1], int(mask.sum())))
+                out[key][..., mask] = val  # broadcast on assignment
     g = g + out["gv"]
     s = s + out["sv"]
     cp = cp + out["cpv"]
@@ -230,7 +230,7 @@ def _ordering_terms(params: EndmemberParameters, p, t, shape):
         full = {}
         for key in ("g", "s", "v", "cp", "dv_dt", "dv_dp"):
             arr = np.zeros(shape)
-            arr[..., has] = np.broadcast_to(getattr(sub, key), (*shape[:-1], int(has.sum())))
+            arr[..., has] = getattr(sub, key)  # broadcast on assignment
             full[key] = arr
         terms.append(ordering.OrderingTerms(**full))
     return terms

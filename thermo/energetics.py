@@ -22,7 +22,7 @@ equilibrated (``State.mass_kg``).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -32,7 +32,7 @@ from thermo.equilibrium import Problem
 from thermo.errors import ConvergenceError
 from thermo.minimize import Equilibrium, SolverOptions, equilibrate
 from thermo.phases import PhaseSystem, build_system
-from thermo.sensitivity import SingularBranch, branch_rates, branch_slopes
+from thermo.sensitivity import BranchRates, SingularBranch, branch_rates, branch_slopes
 
 #: Phases below this mass fraction do not count as present in a state's signature.
 PRESENT_MASS_FRACTION = 1e-12
@@ -168,9 +168,11 @@ class Derivatives:
     melt_fraction_derivative_per_k: float  # dφ/dT
     stencil: str
     delta_k: float
+    rates: BranchRates | None = field(default=None, compare=False, repr=False)  # exact branch rates, if analytic
 
 
-def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> Derivatives:
+def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02,
+                     effective_slope: bool = True) -> Derivatives:
     """Effective (equilibrium-path) derivatives at a state, on the state's own branch.
 
     First derivatives (dh/dT, ds/dT, dv/dT, dφ/dT) are exact, by implicit differentiation of the
@@ -190,6 +192,8 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> D
     state : State
     delta_k : float
         Difference step δ [K].
+    effective_slope : bool
+        Also d(cp_eff)/dT (tables need it; paths do not: NaN when False and the derivatives are exact).
 
     Raises
     ------
@@ -197,7 +201,7 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> D
         If the finite-difference fallback finds phase boundaries within δ/100 on both sides.
     """
     try:
-        return _analytic_derivatives(state, delta_k)
+        return _analytic_derivatives(state, delta_k, effective_slope)
     except SingularBranch:
         pass
     for delta in (delta_k, delta_k / 10.0, delta_k / 100.0):
@@ -210,9 +214,9 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02) -> D
     )
 
 
-def _analytic_derivatives(state: State, delta_k: float) -> Derivatives:
+def _analytic_derivatives(state: State, delta_k: float, effective_slope: bool = True) -> Derivatives:
     rates = branch_rates(state.eq)
-    cf_slope, ce_slope = branch_slopes(state.eq, rates, delta_k)
+    cf_slope, ce_slope = branch_slopes(state.eq, rates, delta_k, effective_slope)
     m, t = state.mass_kg, state.temperature_k
     cp_eff = rates.heat_capacity_effective_j_per_k / m
     return Derivatives(
@@ -222,7 +226,7 @@ def _analytic_derivatives(state: State, delta_k: float) -> Derivatives:
         cp_effective_slope_j_per_kg_k2=ce_slope / m,
         alpha_effective_per_k=rates.volume_rate_m3_per_k / m / state.props.v_m3_per_kg,
         melt_fraction_derivative_per_k=rates.melt_mass_rate_kg_per_k / m,
-        stencil="analytic", delta_k=delta_k,
+        stencil="analytic", delta_k=delta_k, rates=rates,
     )
 
 

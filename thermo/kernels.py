@@ -278,6 +278,28 @@ def minimize_driving_force(starts, units_kind, om, occ, log_k, units, alpha, cma
     return x, d_val, evals
 
 
+@njit(cache=True)
+def distinct_rows(x, tol, max_keep):
+    """Indices of up to ``max_keep`` rows of ``x`` (best first) not within ``tol`` (max norm) of a kept row."""
+    keep = np.empty(min(max_keep, x.shape[0]), np.int64)
+    count = 0
+    for j in range(x.shape[0]):
+        far = True
+        for k in range(count):
+            d = 0.0
+            for i in range(x.shape[1]):
+                d = max(d, abs(x[j, i] - x[keep[k], i]))
+            if d <= tol:
+                far = False
+                break
+        if far:
+            keep[count] = j
+            count += 1
+            if count == max_keep:
+                break
+    return keep[:count]
+
+
 # ----------------------------------------------------------------- Bragg-Williams order parameter
 @njit(cache=True)
 def _xlogx(x):
@@ -358,6 +380,7 @@ def warm_up() -> None:
         chemical_potentials_jacobian(x, *args)
         driving_forces(x, *args, vec)
         minimize_driving_force(x, *args, vec, 2, 1e-6)
+    distinct_rows(x, 1e-3, 4)
     one = np.ones(1)
     bragg_williams_order(one * 1e5, one * 1000.0, one * 1e4, one * 0.0, one * 1e3, one * 0.0, one, one,
                          np.linspace(0.0, 0.99, 5), 8.314, 2)

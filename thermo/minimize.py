@@ -565,17 +565,8 @@ def _probes(found) -> dict:
     """Distinct local minimizers of each solution's driving force from a check (seeds for the next one)."""
     out = {}
     for si, (x, dv) in enumerate(found):
-        order = np.argsort(dv)
-        xs = x[order]
-        # pairwise max-norm distances; a point is kept if no better-ranked kept point is within 1e-3
-        close = np.abs(xs[:, None, :] - xs[None, :, :]).max(axis=2) <= 1e-3
-        keep: list[int] = []
-        for j in range(len(xs)):
-            if not close[j, keep].any():
-                keep.append(j)
-                if len(keep) == 4:
-                    break
-        out[si] = xs[keep]
+        xs = np.ascontiguousarray(x[np.argsort(dv)], dtype=float)
+        out[si] = xs[kernels.distinct_rows(xs, 1e-3, 4)]  # best first, none within 1e-3 of a better one
     return out
 
 

@@ -66,6 +66,7 @@ from thermo.energetics import (
 from thermo.equilibrium import Problem
 from thermo.errors import ConvergenceError, InputError
 from thermo.saturation import Boundary, BoundaryFinder, SaturationEvent, all_liquid, has_liquid, saturation_sequence
+from thermo.sensitivity import predict
 from thermo.validity import check_conditions
 
 MODES = ("equilibrium", "fractional")
@@ -250,7 +251,7 @@ class _PathRun:
         for _ in range(1000):
             if self.exhausted_at is not None or self.prev.temperature_k <= t:
                 return
-            low = solve_state(self.pb, self.p_pa, t, warm=self.prev)
+            low = solve_state(self.pb, self.p_pa, t, warm=self._warm(t))
             found = self.finder.locate(self.pb, self.prev, low, self.prev_names)
             if not found:
                 self._record(low, "grid", None)
@@ -266,9 +267,16 @@ class _PathRun:
             self._record(b.below, "boundary_below", b)
         raise ConvergenceError(f"path did not advance to T = {t} K", {"temperature_k": t})
 
+    def _warm(self, t: float) -> State:
+        """The last row, moved to ``t`` along its branch when its exact rates are known (equilibrium mode)."""
+        rates = self.prev_deriv.rates if self.prev_deriv is not None else None
+        if self.mode != "equilibrium" or rates is None:
+            return self.prev
+        return State(predict(self.prev.eq, rates, t), self.prev.props)
+
     def _record(self, state: State, kind: str, boundary: Boundary | None) -> None:
         step = None
-        deriv = path_derivatives(self.pb, state, self.cfg.delta_k)
+        deriv = path_derivatives(self.pb, state, self.cfg.delta_k, effective_slope=False)
         if self.prev is not None:
             step = self._step(state, deriv)
             self.totals["heat"] += step.heat_released_j * self.scale

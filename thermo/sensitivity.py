@@ -23,7 +23,7 @@ prediction's error is even in δ and cancels in the central difference, leaving 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.constants import R
@@ -51,6 +51,7 @@ class BranchRates:
     volume_rate_m3_per_k: float  # dV/dT
     melt_mass_rate_kg_per_k: float  # d(liquid mass)/dT
     amount_rates: tuple[np.ndarray, ...]  # dn/dT per phase [mol/K]
+    mu_rate: np.ndarray  # dμ/dT of the components [J/(mol K)] (the part the assemblage fixes)
 
 
 def _partial_molar(eq: Equilibrium, ph: PhaseState, std: StandardState, t: float, p: float):
@@ -132,14 +133,36 @@ def branch_rates(eq: Equilibrium, phases: list[PhaseState] | None = None, std: S
         if liquid:
             melt_rate += float(molar_mass @ nd)
     return BranchRates(c_frozen, c_frozen + h_rate, v_rate, melt_rate,
-                       tuple(ndot[offs[j]: offs[j + 1]] for j in range(len(phases))))
+                       tuple(ndot[offs[j]: offs[j + 1]] for j in range(len(phases))), basis @ dz[nv:])
 
 
-def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float) -> tuple[float, float]:
+def predict(eq: Equilibrium, rates: BranchRates, temperature_k: float) -> Equilibrium:
+    """First-order prediction of ``eq``'s branch at another temperature (a warm start, not an answer).
+
+    Solution endmembers move as n·exp(ΔT ṅ/n) (they stay positive), pure phases as n + ΔT ṅ (kept
+    above a thousandth of their amount: the polish decides whether they vanish), μ as μ + ΔT dμ/dT.
+    """
+    dt = temperature_k - eq.temperature_k
+    phases = []
+    for ph, nd in zip(eq.phases, rates.amount_rates, strict=True):
+        n = ph.amount_mol
+        if ph.solution_index >= 0:
+            live = n >= _FROZEN * n.sum()
+            rel = np.where(live, nd / np.where(live, n, 1.0), 0.0)
+            amt = n * np.exp(np.clip(dt * rel, -2.0, 2.0))
+        else:
+            amt = np.maximum(n + dt * nd, 1e-3 * n)
+        phases.append(PhaseState(ph.name, ph.model, ph.solution_index, amt))
+    return replace(eq, phases=phases, mu=eq.mu + dt * rates.mu_rate, temperature_k=temperature_k)
+
+
+def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float, effective: bool = True) -> tuple[float, float]:
     """d(C_frozen)/dT and d²H/dT² [J/K²] on the branch, central differences of exact rates at T ± δ.
 
-    Raises :class:`SingularBranch` when a phase's amount would change by more than 10 % over δ (a
-    boundary close by: one-sided differences of converged states are the answer there).
+    d(C_frozen)/dT = Σ n_i dCp°_i/dT + Σ Cp°_i ṅ_i, with dCp°/dT a central difference of the standard
+    state. d²H/dT² (only if ``effective``; NaN otherwise) is the central difference of the exact dH/dT
+    at the predicted states. Raises :class:`SingularBranch` when a phase's amount would change by more
+    than 10 % over δ (a boundary close by: one-sided differences of converged states are the answer there).
     """
     t = eq.temperature_k
     # a phase about to vanish (n → 0 at a boundary within a few δ) changes fast in ln n; the branch
@@ -153,6 +176,15 @@ def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float) -> tuple[
     if fastest * delta_k > 0.1:
         raise SingularBranch(f"a phase vanishes within {0.1 / fastest:.3g} K of T = {t:.6f} K")
     std2 = standard_state(eq.system.params, eq.pressure_pa, np.array([t - delta_k, t + delta_k]))
+    dcp_dt = (std2.cp_j_per_mol_k[1] - std2.cp_j_per_mol_k[0]) / (2.0 * delta_k)
+    s = eq.system
+    frozen_slope = 0.0
+    for ph, nd in zip(eq.phases, rates.amount_rates, strict=True):
+        idx = ([s.pure_names.index(ph.model)] if ph.solution_index < 0
+               else s.solutions[ph.solution_index].endmember_index)
+        frozen_slope += float(ph.amount_mol @ dcp_dt[idx] + nd @ eq.standard.cp_j_per_mol_k[idx])
+    if not effective:
+        return frozen_slope, float("nan")
     out = []
     for k, sign in enumerate((-1.0, 1.0)):
         std = StandardState(*(getattr(std2, f)[k] for f in StandardState.__dataclass_fields__))
@@ -166,5 +198,5 @@ def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float) -> tuple[
                 amt = ph.amount_mol + sign * delta_k * nd
             moved.append(PhaseState(ph.name, ph.model, ph.solution_index, amt))
         out.append(branch_rates(eq, moved, std, t + sign * delta_k))
-    return ((out[1].heat_capacity_frozen_j_per_k - out[0].heat_capacity_frozen_j_per_k) / (2.0 * delta_k),
-            (out[1].heat_capacity_effective_j_per_k - out[0].heat_capacity_effective_j_per_k) / (2.0 * delta_k))
+    return frozen_slope, (out[1].heat_capacity_effective_j_per_k - out[0].heat_capacity_effective_j_per_k) / (
+        2.0 * delta_k)

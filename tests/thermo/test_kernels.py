@@ -81,6 +81,7 @@ def test_warm_up_compiles_the_signatures_the_minimizer_uses():
 
     kernels.warm_up()
     dispatchers = [kernels.chemical_potentials, kernels.chemical_potentials_jacobian, kernels.driving_forces,
+                   kernels.distinct_rows,
                    kernels.minimize_driving_force, kernels.bragg_williams_order]
     before = [len(d.signatures) for d in dispatchers]
     solve_point(prepare(BASALT_LIKE), 2.0, 1500.0)
