@@ -12,10 +12,12 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.constants import R
 
-from thermo import solutions as sol
+from thermo import kernels
 from thermo.composition import oxide_molar_mass_g_per_mol
 from thermo.minimize import Equilibrium, PhaseState
+from thermo.solutions import SolutionModel
 
 
 @dataclass(frozen=True)
@@ -87,6 +89,24 @@ def _wt_percent(components, moles):
     return {c: float(100.0 * m / total) for c, m in zip(components, masses, strict=True) if m > 0}
 
 
+def _solution_terms(model: SolutionModel, frac: np.ndarray, g0: np.ndarray, t: float, p: float):
+    """G [J/mol], S_conf, S_ex [J/(mol K)] and V_ex [m³/mol] of a solution at composition ``frac``.
+
+    The terms of :mod:`thermo.solutions` through the compiled kernels: G = Σ p_i μ_i,
+    S_conf = −R Σ p_i ln a_i(ideal), S_ex = Σ p_i μ_ex,i(W_S), V_ex = Σ p_i μ_ex,i(W_V).
+    """
+    x = np.ascontiguousarray(frac[None], dtype=float)
+    args = model.kernel_args(t, p)
+    static = args[:6]
+    zeros, no_g0 = np.zeros((model.size, model.size)), np.zeros(model.size)
+    g = float(frac @ kernels.chemical_potentials(x, *args, np.ascontiguousarray(g0, dtype=float), R * t)[0])
+    s_conf = -float(frac @ kernels.chemical_potentials(x, *static, zeros, False, no_g0, R)[0])
+    c_s, c_v = model.entropy_volume_kernel_matrices
+    s_ex = float(frac @ kernels.chemical_potentials(x, *static, c_s, True, no_g0, 0.0)[0]) if c_s is not None else 0.0
+    v_ex = float(frac @ kernels.chemical_potentials(x, *static, c_v, True, no_g0, 0.0)[0]) if c_v is not None else 0.0
+    return g, s_conf, s_ex, v_ex
+
+
 def _phase_properties(eq: Equilibrium, ph: PhaseState) -> PhaseProperties:
     s, std, t, p = eq.system, eq.standard, eq.temperature_k, eq.pressure_pa
     if ph.solution_index < 0:
@@ -100,9 +120,7 @@ def _phase_properties(eq: Equilibrium, ph: PhaseState) -> PhaseProperties:
         sp = s.solutions[ph.solution_index]
         idx, stoich, mass = sp.endmember_index, sp.stoich, sp.molar_mass
         frac = ph.amount_mol / ph.amount_mol.sum()
-        g = float(sol.molar_gibbs(sp.model, frac, std.g_j_per_mol[idx], t, p))
-        s_conf = float(sol.ideal_entropy(sp.model, frac))
-        s_ex, v_ex = (float(x) for x in sol.excess_entropy_volume(sp.model, frac))
+        g, s_conf, s_ex, v_ex = _solution_terms(sp.model, frac, std.g_j_per_mol[idx], t, p)
         names, liquid = sp.model.endmembers, sp.model.is_liquid
     entropy = float(frac @ std.s_j_per_mol_k[idx]) + s_conf + s_ex
     vol = float(frac @ std.v_m3_per_mol[idx]) + v_ex

@@ -29,7 +29,6 @@ import numpy as np
 from scipy.constants import R
 
 from thermo import kernels
-from thermo import solutions as sol
 from thermo.endmembers import StandardState, standard_state
 from thermo.minimize import Equilibrium, PhaseState, _kernel_args
 from thermo.phases import span
@@ -63,13 +62,17 @@ def _partial_molar(eq: Equilibrium, ph: PhaseState, std: StandardState, t: float
                 std.v_m3_per_mol[[k]] * std.alpha_per_k[[k]], s.pure_molar_mass[[k]])
     sp = s.solutions[ph.solution_index]
     idx, model = sp.endmember_index, sp.model
-    frac = ph.amount_mol / ph.amount_mol.sum()
-    s_bar = std.s_j_per_mol_k[idx] - R * sol.ideal_log_activity(model, frac)
-    v_bar = std.v_m3_per_mol[idx].copy()
-    if np.any(model.w_s):
-        s_bar = s_bar + sol._excess_parts(model, frac, model.w_s)[1]
-    if np.any(model.w_v):
-        v_bar = v_bar + sol._excess_parts(model, frac, model.w_v)[1]
+    x = np.ascontiguousarray(ph.amount_mol[None], dtype=float)
+    static = model.kernel_args(t, p)[:6]
+    zeros, no_g0 = np.zeros((model.size, model.size)), np.zeros(model.size)
+    r_ln_a = kernels.chemical_potentials(x, *static, zeros, False, no_g0, R)[0]  # R ln a_i (ideal)
+    s_bar = std.s_j_per_mol_k[idx] - r_ln_a
+    v_bar = std.v_m3_per_mol[idx]
+    c_s, c_v = model.entropy_volume_kernel_matrices
+    if c_s is not None:
+        s_bar = s_bar + kernels.chemical_potentials(x, *static, c_s, True, no_g0, 0.0)[0]
+    if c_v is not None:
+        v_bar = v_bar + kernels.chemical_potentials(x, *static, c_v, True, no_g0, 0.0)[0]
     return (s_bar, v_bar, std.cp_j_per_mol_k[idx], std.v_m3_per_mol[idx] * std.alpha_per_k[idx], sp.molar_mass)
 
 

@@ -83,6 +83,19 @@ class SolutionModel:
         return (*static, b + b.T, True)
 
     @cached_property
+    def entropy_volume_kernel_matrices(self) -> tuple[np.ndarray | None, np.ndarray | None]:
+        """C = B + Bᵀ of the kernels for W_S and for W_V alone (None where zero): μ_ex of those matrices are
+        the excess partial molar entropy [J/(mol K)] and volume [m³/mol] (W = W_H − T·W_S + P·W_V)."""
+        out = []
+        for w in (self.w_s, self.w_v):
+            if not np.any(w):
+                out.append(None)
+                continue
+            b = w * (2.0 / (self.alpha[:, None] + self.alpha[None, :]))
+            out.append(np.ascontiguousarray(b + b.T))
+        return out[0], out[1]
+
+    @cached_property
     def _van_laar_factor(self) -> np.ndarray | None:
         """2/(α_i + α_j), or None for a model without interaction energies."""
         if not (np.any(self.w_h) or np.any(self.w_s) or np.any(self.w_v)):

@@ -38,10 +38,11 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from thermo.energetics import State, path_derivatives, solve_state
+from thermo.energetics import Derivatives, State, path_derivatives, solve_state
 from thermo.equilibrium import Problem
 from thermo.errors import InputError
 from thermo.saturation import BoundaryFinder, all_liquid, has_liquid
+from thermo.sensitivity import predict
 from thermo.validity import check_conditions
 
 #: Gridded fields: name → (UDUNITS units, description).
@@ -99,8 +100,8 @@ class PropertyTable:
 
 
 # ------------------------------------------------------------------ rows
-def _values(state: State, problem: Problem, delta_k: float) -> dict[str, float]:
-    d = path_derivatives(problem, state, delta_k)
+def _values(state: State, problem: Problem, delta_k: float, d: Derivatives | None = None) -> dict[str, float]:
+    d = d if d is not None else path_derivatives(problem, state, delta_k)
     p = state.props
     return {
         "cp_effective_slope": d.cp_effective_slope_j_per_kg_k2,
@@ -132,10 +133,15 @@ def table_row(problem: Problem, pressure_gpa: float, temperatures_k: np.ndarray,
     p_pa = pressure_gpa * 1e9
     finder = BoundaryFinder(p_pa)
     states: list[State] = []
+    derivs: list[Derivatives] = []
     for t in temperatures_k[::-1]:
-        states.append(solve_state(problem, p_pa, float(t), warm=states[-1] if states else None))
+        warm = states[-1] if states else None
+        if warm is not None and derivs[-1].rates is not None:  # moved along its branch: fewer Newton steps
+            warm = State(predict(warm.eq, derivs[-1].rates, float(t)), warm.props)
+        states.append(solve_state(problem, p_pa, float(t), warm=warm))
+        derivs.append(path_derivatives(problem, states[-1], delta_k))
     bounds = [b for up, low in itertools.pairwise(states) for b in finder.locate(problem, up, low)]
-    grid = [_values(s, problem, delta_k) for s in states[::-1]]
+    grid = [_values(s, problem, delta_k, d) for s, d in zip(states[::-1], derivs[::-1], strict=True)]
     points = []
     for k, b in enumerate(bounds):
         for side, st in ((-1, b.below), (1, b.above)):
