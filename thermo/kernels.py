@@ -364,6 +364,25 @@ def bragg_williams_order(p, t, dh, dv, w, wv, n, factor, q_grid, r_gas, iteratio
     return out
 
 
+@njit(cache=True)
+def bragg_williams_state(p, t, dh, dv, w, wv, n, factor, q_grid, r_gas, iterations):
+    """Equilibrium Q and, at it, G, ∂²G/∂Q², S_conf and ∂S_conf/∂Q (flat arrays; see _bw_terms)."""
+    q = bragg_williams_order(p, t, dh, dv, w, wv, n, factor, q_grid, r_gas, iterations)
+    size = q.shape[0]
+    g, gqq, s, ds = np.empty(size), np.empty(size), np.empty(size), np.empty(size)
+    for e in range(size):
+        g[e], _, gqq[e] = _bw_terms(q[e], p[e], t[e], dh[e], dv[e], w[e], wv[e], n[e], factor[e], r_gas)
+        nn, qq = n[e], q[e]
+        xa1 = (1.0 + nn * qq) / (1.0 + nn)
+        xb1 = nn * (1.0 - qq) / (1.0 + nn)
+        xa2 = (1.0 - qq) / (1.0 + nn)
+        xb2 = (nn + qq) / (1.0 + nn)
+        s[e] = -r_gas * factor[e] * (_xlogx(xa1) + _xlogx(xb1) + nn * (_xlogx(xa2) + _xlogx(xb2)))
+        k = nn / (1.0 + nn)
+        ds[e] = -r_gas * factor[e] * k * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
+    return q, g, gqq, s, ds
+
+
 def warm_up() -> None:
     """Compile (or load from numba's on-disk cache) every kernel with the argument types the minimizer uses.
 
@@ -383,4 +402,6 @@ def warm_up() -> None:
     distinct_rows(x, 1e-3, 4)
     one = np.ones(1)
     bragg_williams_order(one * 1e5, one * 1000.0, one * 1e4, one * 0.0, one * 1e3, one * 0.0, one, one,
+                         np.linspace(0.0, 0.99, 5), 8.314, 2)
+    bragg_williams_state(one * 1e5, one * 1000.0, one * 1e4, one * 0.0, one * 1e3, one * 0.0, one, one,
                          np.linspace(0.0, 0.99, 5), 8.314, 2)

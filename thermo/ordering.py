@@ -122,9 +122,13 @@ def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iter
 
 
 def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):
-    q = equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
-    g, _, gqq, s, ds = _bw_g(q, pressure_pa, temperature_k, dh, dv, w, wv, n, factor)
-    return q, g, gqq, s, ds
+    """Q, G, ∂²G/∂Q², S_conf and ∂S_conf/∂Q at the equilibrium order (compiled; shapes broadcast)."""
+    arrays = np.broadcast_arrays(
+        np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
+    )
+    flat = [np.ascontiguousarray(a, dtype=float).ravel() for a in arrays]
+    out = kernels.bragg_williams_state(*flat, _Q_GRID, R, 40)
+    return tuple(v.reshape(arrays[0].shape) for v in out)
 
 
 @lru_cache(maxsize=256)
@@ -134,9 +138,23 @@ def _reference(dh, dv, w, wv, n, factor):
     return float(g0), float(s0)
 
 
+_REFERENCE_CACHE: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
+
+
 def _reference_arrays(*params):
     """Elementwise cached reference G and S for (broadcast) parameter arrays."""
     arrays = np.broadcast_arrays(*[np.asarray(x, float) for x in params])
+    key = b"".join(np.ascontiguousarray(a).tobytes() for a in arrays) + repr(arrays[0].shape).encode()
+    hit = _REFERENCE_CACHE.get(key)
+    if hit is not None:
+        return hit
+    if len(_REFERENCE_CACHE) > 256:
+        _REFERENCE_CACHE.clear()
+    _REFERENCE_CACHE[key] = _reference_arrays_uncached(arrays)
+    return _REFERENCE_CACHE[key]
+
+
+def _reference_arrays_uncached(arrays):
     flat = [a.ravel() for a in arrays]
     pairs = [_reference(*(float(f[i]) for f in flat)) for i in range(flat[0].size)]
     g0 = np.array([pr[0] for pr in pairs]).reshape(arrays[0].shape)
