@@ -195,7 +195,7 @@ def _listed_files(directory: Path, man: dict[str, Any]) -> list[str]:
 
 # --- liquid volumes (liquid_volumes.toml) -------------------------------------------------------------------------
 _LIQUID_VOLUME_KEYS = {
-    "reference_temperature_k", "volume_cm3_per_mol", "bulk_modulus_gpa", "source", "fitted_to", "note",
+    "reference_temperature_k", "volume_cm3_per_mol", "bulk_modulus_gpa", "k_prime", "source", "fitted_to", "note",
 }
 
 
@@ -204,7 +204,9 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
 
     The file states, for a liquid, its volume and/or isothermal bulk modulus at 1 bar and a
     reference temperature; they are turned into factors on the endmembers.csv V0 and K0 (which
-    stay as recalled). Without the file every liquid keeps factors 1 and the default β.
+    stay as recalled). An entry may also replace the liquid's K′ (``k_prime``, where the melting
+    data demand it; docs/liquid-volumes.md). Without the file every liquid keeps factors 1, its
+    recalled K′ and the default β.
     """
     from thermo.liquid_eos import DEFAULT_DLNK_DT_PER_K, one_bar_state
 
@@ -213,6 +215,7 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
     if not (math.isfinite(beta) and 0.0 <= beta < 1e-3):
         raise DatasetError("liquid_volumes.toml: bulk_modulus_temperature_coefficient_per_k must be in [0, 1e-3)")
     out = np.tile([1.0, 1.0, beta], (len(params.names), 1))
+    k_prime = params.k0_prime.copy()
     for name, entry in table.get("liquids", {}).items():
         where = f"liquid_volumes.toml: [liquids.{name}]"
         if name not in params.names or not params.is_liquid[params.names.index(name)]:
@@ -230,7 +233,12 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
             out[i, 0] = values["volume_cm3_per_mol"] * 1e-6 / v1
         if values["bulk_modulus_gpa"] is not None:
             out[i, 1] = values["bulk_modulus_gpa"] * 1e9 / k1
-    return replace(params, liquid_volume=out)
+        if "k_prime" in entry:
+            kp = entry["k_prime"]
+            if not (isinstance(kp, int | float) and math.isfinite(kp) and 1.0 < kp < 20.0):
+                raise DatasetError(f"{where}: k_prime must be a number in (1, 20)")
+            k_prime[i] = float(kp)
+    return replace(params, liquid_volume=out, k0_prime=k_prime)
 
 
 # --- liquid calibration (liquid_calibration.toml) ----------------------------------------------------------------

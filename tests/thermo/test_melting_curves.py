@@ -6,16 +6,20 @@ melting point.
 
 Calibrated and validated (docs/liquid-volumes.md; liquid_volumes.toml):
 - FITTED: forsterite liquid volume and bulk modulus at 2163 K (Ohtani & Kumazawa 1981: H01-H03, M27
-  and their fit at 15 GPa); diopside liquid volume at 1665 K (Boyd & England 1963, memory). These
-  tests guard the calibration; they are not independent checks.
-- VALIDATED (not fitted): diopside initial slope (Yoder 1952), albite (Boyd & England 1963),
-  enstatite (Boyd, England & Davis 1964), anorthite (Goldsmith 1980), 1-bar liquid volumes
-  (Lange & Carmichael 1987), thermodynamic identities and physical bounds.
+  and their fit at 15 GPa); diopside liquid volume at 1665 K (Boyd & England 1963, memory); fayalite,
+  silica, enstatite and albite liquids (volume, bulk modulus; K' of fayalite and silica) to the rows of
+  calibration/melting_curves.csv (memory). These tests guard the calibration; they are not independent checks.
+- VALIDATED (not fitted): diopside initial slope (Yoder 1952), anorthite (Goldsmith 1980), 1-bar liquid
+  volumes (Lange & Carmichael 1987), fitted bulk moduli against partial molar compressibilities (Kress &
+  Carmichael 1991), thermodynamic identities and physical bounds.
 Values marked "memory" were recalled from the publication, not re-read; their tolerances include
 the uncertainty of that recollection, as stated beside each.
 """
 
 from __future__ import annotations
+
+import csv
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -122,24 +126,79 @@ def test_diopside_initial_melting_slope_matches_yoder(params):
     assert abs(slope - 130.0) <= 20.0, f"slope = {slope:.1f} K/GPa"
 
 
-# --- albite, enstatite, anorthite (VALIDATED, recalled liquid parameters unchanged) ----------------------------------
-# Albite: Boyd & England (1963) J. Geophys. Res. 68:311-323, memory of the published curve: about 1240, 1315 and
-# 1370 degC at 10, 20 and 30 kbar (the curve flattens towards the jadeite + quartz field near 32 kbar). Tolerance
-# +/-50 K: the recollection's spread plus the 12 K by which the dataset's 1-bar point is already high (M14).
-# Enstatite: Boyd F.R., England J.L. & Davis B.T.C. (1964) J. Geophys. Res. 69:2101-2109, memory: congruent
-# melting near 1900 degC at 45 kbar; +/-60 K.
-VALIDATION_CURVES = [
-    pytest.param("high_albite", "albite_liquid", 1.0, 1240.0 + CELSIUS_K, 50.0, id="BE63-albite-1GPa"),
-    pytest.param("high_albite", "albite_liquid", 2.0, 1315.0 + CELSIUS_K, 50.0, id="BE63-albite-2GPa"),
-    pytest.param("high_albite", "albite_liquid", 3.0, 1370.0 + CELSIUS_K, 50.0, id="BE63-albite-3GPa"),
-    pytest.param("enstatite", "enstatite_liquid", 4.5, 1900.0 + CELSIUS_K, 60.0, id="BED64-enstatite-4.5GPa"),
-]
+# --- fayalite, silica, enstatite, albite (FITTED: calibration/melting_curves.csv, fit_liquid_volumes.py) ------------
+# Each row carries its source, provenance (all memory) and uncertainty; the tolerance is that uncertainty. These
+# tests guard the calibration; they are not independent checks.
+CURVES_CSV = Path(__file__).resolve().parents[2] / "calibration" / "melting_curves.csv"
 
 
-@pytest.mark.parametrize(("solid", "liquid", "pressure_gpa", "reference_k", "tolerance_k"), VALIDATION_CURVES)
-def test_unfitted_melting_curves_follow_experiments(params, solid, liquid, pressure_gpa, reference_k, tolerance_k):
-    t_m = melting_temperature_k(params, solid, liquid, pressure_gpa * GPA)
-    assert abs(t_m - reference_k) <= tolerance_k, f"Tm = {t_m:.1f} K"
+def _curve_rows():
+    lines = [ln for ln in CURVES_CSV.read_text(encoding="utf-8").splitlines() if ln and not ln.startswith("#")]
+    return list(csv.DictReader(lines))
+
+
+def _alternatives(text):
+    """'a|b+c|0.5*d' -> [{a: 1}, {b: 1, c: 1}, {d: 0.5}] (the layout of melting_curves.csv)."""
+    out = []
+    for alt in text.split("|"):
+        combo = {}
+        for term in alt.split("+"):
+            factor, _, name = term.strip().rpartition("*")
+            combo[name] = combo.get(name, 0.0) + (float(factor) if factor else 1.0)
+        out.append(combo)
+    return out
+
+
+def _assemblage_gap(params, liquid, alternatives, pressure_pa, temperature_k):
+    names = sorted({n for combo in alternatives for n in combo} | {liquid})
+    g = standard_state(params.subset(names), pressure_pa, temperature_k).g_j_per_mol
+    crystal = np.min([sum(c * g[..., names.index(n)] for n, c in combo.items()) for combo in alternatives], axis=0)
+    return g[..., names.index(liquid)] - crystal
+
+
+def assemblage_melting_temperature_k(params, liquid, alternatives, pressure_pa) -> float:
+    """Lowest T in 800-6000 K where the liquid falls below the most stable crystalline alternative (NaN if none)."""
+    grid = np.arange(800.0, 6000.0 + 1.0, 20.0)
+    gap = _assemblage_gap(params, liquid, alternatives, pressure_pa, grid)
+    down = np.flatnonzero((gap[:-1] > 0.0) & (gap[1:] < 0.0))
+    if not down.size:
+        return float("nan")
+    f = lambda t: float(_assemblage_gap(params, liquid, alternatives, pressure_pa, t))  # noqa: E731
+    return brentq(f, grid[down[0]], grid[down[0] + 1], xtol=1e-6)
+
+
+@pytest.mark.parametrize("row", _curve_rows(), ids=lambda r: f"{r['id']}-{r['liquid']}-{r['pressure_gpa']}GPa")
+def test_fitted_melting_curves_follow_their_data(params, row):
+    t_m = assemblage_melting_temperature_k(params, row["liquid"], _alternatives(row["solids"]),
+                                           float(row["pressure_gpa"]) * GPA)
+    assert abs(t_m - float(row["temperature_k"])) <= float(row["uncertainty_k"]), f"Tm = {t_m:.1f} K"
+
+
+# Partial molar estimate of the 1-bar bulk modulus near 1673 K (Lange & Carmichael 1987 volumes, Kress & Carmichael
+# 1991 Contrib. Mineral. Petrol. 108:82 dV/dP; memory; the numbers are in calibration/fit_liquid_volumes.py). A
+# fitted liquid whose bulk modulus at its reference temperature strays beyond a factor 2 of it is not credible.
+PARTIAL_MOLAR_K_GPA = {"fayalite_liquid": 19.6, "silica_liquid": 14.2, "enstatite_liquid": 24.0,
+                       "albite_liquid": 14.2}
+
+
+@pytest.mark.parametrize("liquid", list(PARTIAL_MOLAR_K_GPA))
+def test_fitted_bulk_moduli_are_within_a_factor_two_of_partial_molar_estimates(params, liquid):
+    t_ref = load_dataset().extra["liquid_volumes"]["liquids"][liquid]["reference_temperature_k"]
+    k = standard_state(params.subset([liquid]), ONE_BAR_PA, t_ref).k_t_pa[0] / GPA
+    assert 0.5 <= k / PARTIAL_MOLAR_K_GPA[liquid] <= 2.0, f"K = {k:.1f} GPa"
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "fayalite liquid: Fe2SiO4 melting falls from 2013 K at 15 GPa to 1837 K at 20 GPa, then 2486 K at 25 GPa; "
+    "the liquid's expansivity stays near 1e-4/K to 25 GPa (docs/liquid-volumes.md, 'Expansivity at pressure')"))
+def test_fayalite_melting_curve_rises_to_25_gpa(params):
+    alternatives = _alternatives("fayalite|fe_ringwoodite|2*fe_periclase+stishovite")
+    temps = [assemblage_melting_temperature_k(params, "fayalite_liquid", alternatives, p * GPA)
+             for p in (15.0, 17.5, 20.0, 22.5, 25.0)]
+    assert np.all(np.diff(temps) > 0.0), temps
+
+
+# --- enstatite at 4.5 GPa is now a fitted row (BED64b); no unfitted curve of these liquids remains ---------------
 
 
 def test_anorthite_melting_curve_rises_at_low_pressure(params):
@@ -154,9 +213,10 @@ def test_anorthite_melting_curve_rises_at_low_pressure(params):
 
 # --- 1-bar liquid volumes against Lange & Carmichael (1987) (VALIDATED) ---------------------------------------------
 # checks.csv L14: partial molar volumes at 1673 K, SiO2 26.9 (memory), and from its notes (memory, uncertain):
-# Al2O3 37.1, MgO 12.0, CaO 16.6-16.9 (16.75 used), Na2O 29.0, FeO 13.7-14.0 (13.85 used) cm3/mol. Tolerance 2.5 %:
-# the spread of those recollections (e.g. FeO +/-0.15, MgO 11.45-12.0) summed over a formula, and the ~0.5 % accuracy
-# of the additive model for these compositions. Forsterite and diopside liquids are fitted (see the docs).
+# Al2O3 37.1, MgO 12.0, CaO 16.75 (16.6-16.9), Na2O 29.0, FeO 13.85 (13.7-14.0) cm3/mol. Tolerance 2.5 %: the spread of
+# those recollections (e.g. FeO +/-0.15, MgO 11.45-12.0) summed over a formula, and the ~0.5 % accuracy of the
+# additive model for these compositions. Liquids whose volume is fitted to melting curves (liquid_volumes.toml) get
+# that tolerance combined with twice the fit's standard error (relative, from the toml's fitted_to text).
 LC87 = {"SiO2": 26.9, "Al2O3": 37.1, "MgO": 12.0, "CaO": 16.75, "Na2O": 29.0, "FeO": 13.85}
 LIQUID_OXIDES = {
     "anorthite_liquid": {"CaO": 1, "Al2O3": 1, "SiO2": 2},
@@ -165,14 +225,32 @@ LIQUID_OXIDES = {
     "fayalite_liquid": {"FeO": 2, "SiO2": 1},
     "silica_liquid": {"SiO2": 1},
     "corundum_liquid": {"Al2O3": 1},
+    "diopside_liquid": {"CaO": 1, "MgO": 1, "SiO2": 2},
+    "forsterite_liquid": {"MgO": 2, "SiO2": 1},
 }
+#: standard error of the fitted 1-bar volume [cm3/mol] and the fitted volume (liquid_volumes.toml)
+FITTED_VOLUME_SE = {"albite_liquid": (1.53, 111.95), "enstatite_liquid": (1.61, 75.05),
+                    "fayalite_liquid": (1.21, 53.25), "silica_liquid": (0.71, 27.75),
+                    "diopside_liquid": (1.0, 81.0), "forsterite_liquid": (0.42, 50.11)}
 
 
-@pytest.mark.parametrize("liquid", list(LIQUID_OXIDES))
+def _lc_tolerance(liquid):
+    if liquid not in FITTED_VOLUME_SE:
+        return 0.025
+    se, v = FITTED_VOLUME_SE[liquid]
+    return float(np.hypot(0.025, 2.0 * se / v))
+
+
+@pytest.mark.parametrize("liquid", [
+    *[n for n in LIQUID_OXIDES if n != "forsterite_liquid"],
+    pytest.param("forsterite_liquid", marks=pytest.mark.xfail(strict=True, reason=(
+        "fitted forsterite liquid 47.90 cm3/mol at 1673 K against 50.9 from Lange & Carmichael (-5.9 %, tolerance "
+        "3.0 %): the Ohtani & Kumazawa curve demands a denser liquid (docs/liquid-volumes.md)"))),
+])
 def test_one_bar_liquid_volume_matches_lange_carmichael(params, liquid):
     expected_cm3 = sum(n * LC87[ox] for ox, n in LIQUID_OXIDES[liquid].items())
     v = standard_state(params.subset([liquid]), ONE_BAR_PA, 1673.0).v_m3_per_mol[0] * 1e6
-    assert v == pytest.approx(expected_cm3, rel=0.025)
+    assert v == pytest.approx(expected_cm3, rel=_lc_tolerance(liquid))
 
 
 # --- physical bounds (0-25 GPa, 1000-4000 K) ---------------------------------------------------------------------
@@ -190,9 +268,10 @@ def test_liquid_volume_and_bulk_modulus_are_positive_and_finite_over_the_domain(
     assert np.all(np.diff(state.v_m3_per_mol, axis=1) < 0.0)
     assert np.all(np.diff(state.k_t_pa, axis=1) > 0.0)
     # Expansivity stays below 1.5e-4 /K. Where K(T) has fallen far (above ~3000 K, high P), the silica,
-    # anorthite and corundum liquids get small negative α (down to -4.4e-5 /K): a known property of this form
-    # (docs/liquid-volumes.md), bounded here so that it cannot grow unnoticed.
-    assert np.all(state.alpha_per_k < 1.5e-4) and np.all(state.alpha_per_k > -5e-5)
+    # anorthite and corundum liquids get negative α: a known property of this form (docs/liquid-volumes.md),
+    # bounded here so that it cannot grow unnoticed. Silica liquid reaches -7.5e-5 /K at 25 GPa and 4000 K since
+    # its fitted K' (6.22) and 1-bar K (13.9 GPa at 1996 K); the recalled values gave -4.4e-5 /K.
+    assert np.all(state.alpha_per_k < 1.5e-4) and np.all(state.alpha_per_k > -8e-5)
 
 
 def test_liquid_expansivity_and_compressibility_near_the_liquidus_are_those_of_silicate_liquids(params):
@@ -215,6 +294,7 @@ def test_liquid_is_less_dense_than_its_crystal_at_the_one_bar_melting_point(para
         ("anorthite", "anorthite_liquid"),
         ("enstatite", "enstatite_liquid"),
         ("fayalite", "fayalite_liquid"),
+        ("quartz", "silica_liquid"),
     ):
         t_m = melting_temperature_k(params, solid, liquid, ONE_BAR_PA)
         v = standard_state(params.subset([solid, liquid]), ONE_BAR_PA, t_m).v_m3_per_mol
@@ -284,3 +364,14 @@ def test_liquid_volumes_file_rejects_unknown_or_solid_endmembers(params):
             apply_liquid_volumes(params, {"liquids": {name: entry}})
     with pytest.raises(DatasetError, match="unknown keys"):
         apply_liquid_volumes(params, {"liquids": {"forsterite_liquid": {**entry, "volum_cm3": 1.0}}})
+    for bad in (0.5, 25.0, float("nan"), "6"):
+        with pytest.raises(DatasetError, match="k_prime"):
+            apply_liquid_volumes(params, {"liquids": {"forsterite_liquid": {**entry, "k_prime": bad}}})
+
+
+def test_liquid_volumes_file_k_prime_replaces_only_that_liquid(params):
+    entry = {"reference_temperature_k": 2000.0, "source": "test", "k_prime": 6.0}
+    out = apply_liquid_volumes(params, {"liquids": {"forsterite_liquid": entry}})
+    i = params.names.index("forsterite_liquid")
+    assert out.k0_prime[i] == 6.0
+    np.testing.assert_array_equal(np.delete(out.k0_prime, i), np.delete(params.k0_prime, i))
