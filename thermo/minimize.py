@@ -225,7 +225,11 @@ def _solve_lp(cols: _Columns, bulk, mu_ref, programme: ColumnProgramme | None = 
     comp = cols.comp
     try:
         if programme is not None:
-            solved = programme.solve(comp, cols.g, mu_ref)
+            try:
+                solved = programme.solve(comp, cols.g, mu_ref)
+            except InfeasibleError:  # confirmed below by fresh solves before the bulk is refused
+                programme.reset()
+                solved = None
             if solved is not None:
                 return solved
         a = comp.T
@@ -236,7 +240,7 @@ def _solve_lp(cols: _Columns, bulk, mu_ref, programme: ColumnProgramme | None = 
             res = linprog(g / scale, A_eq=a, b_eq=bulk, bounds=(0, None), method=method, options=options)
             if res.status == 0:
                 break
-        if res.status == 2:
+        if res.status == 2:  # every HiGHS solver found the programme infeasible
             raise InfeasibleError
     except InfeasibleError:
         raise CompositionError(

@@ -77,6 +77,10 @@ class ColumnProgramme:
         self._h: highspy.Highs | None = None
         self._count = 0
 
+    def reset(self) -> None:
+        """Forget the model (the next solve builds it afresh from all columns)."""
+        self._h, self._count = None, 0
+
     @property
     def size(self) -> int:
         """Columns in the model."""

@@ -14,7 +14,7 @@ from scipy.optimize import linprog
 
 from tests.thermo import driving_force_reference as reference
 from thermo import solutions as sol
-from thermo.composition import bulk_from_oxides
+from thermo.composition import bulk_from_oxides, oxide_molar_mass_g_per_mol
 from thermo.dataset import load_dataset
 from thermo.equilibrium import prepare, solve_point
 from thermo.errors import CompositionError, ConvergenceError, OutOfDomainError
@@ -171,3 +171,22 @@ def test_warm_started_cooling_sequence_agrees_with_cold_solves_at_every_step():
         cold, _ = solve_point(problem, 4.0, t)
         assert sorted(p.name for p in warm.phases) == sorted(p.name for p in cold.phases), t
         assert _total_gibbs(warm) == pytest.approx(_total_gibbs(cold), rel=1e-11, abs=1e-4)
+
+
+def test_a_bulk_just_off_a_join_is_not_refused_as_outside_the_system():
+    """Albite + 0.01 wt% Al2O3 with liquid, high albite and corundum at 2 GPa, 1565 K (row BE63c of
+    calibration/experiments.csv): the bulk is albite plus a little corundum, so it can be made. The
+    persistent linear programme once reported it infeasible near the albite melting point; a refusal
+    must be confirmed by fresh solves of the programme."""
+    moles = {"Na2O": 0.5, "Al2O3": 0.5, "SiO2": 3.0}  # NaAlSi3O8
+    mass = {k: n * oxide_molar_mass_g_per_mol(k) for k, n in moles.items()}
+    frac = {k: 100.0 * m / sum(mass.values()) for k, m in mass.items()}
+    frac["Al2O3"] += 0.01
+    total = sum(frac.values())
+    bulk = np.array([1000.0 * frac.get(o, 0.0) / total / oxide_molar_mass_g_per_mol(o) for o in DS.oxides])
+    system = build_system(DS, bulk, phases=["liquid", "high_albite", "corundum"])
+    b = bulk[system.component_index]
+    for t in (1564.98, 1565.0, 1565.013):
+        eq = equilibrate(system, 2e9, t, b)
+        assert eq.diagnostics["mass_balance_residual"] < 1e-10
+        assert {p.name for p in eq.phases} <= {"liquid", "high_albite", "corundum"}
