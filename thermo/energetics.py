@@ -28,6 +28,7 @@ import numpy as np
 
 from thermo.assemblage import Assemblage, assemblage_properties
 from thermo.composition import Bulk, oxide_molar_mass_g_per_mol
+from thermo.endmembers import StandardState, standard_state
 from thermo.equilibrium import Problem
 from thermo.errors import ConvergenceError
 from thermo.minimize import Equilibrium, SolverOptions, equilibrate
@@ -46,6 +47,8 @@ class State:
 
     eq: Equilibrium
     props: Assemblage
+    # standard states at T − δ and T + δ (arrays (2, n)) and δ [K], when the caller asked for them
+    neighbours: tuple[StandardState, float] | None = None
 
     @property
     def temperature_k(self) -> float:
@@ -86,19 +89,29 @@ def solve_state(
     warm: State | None = None,
     options: SolverOptions | None = None,
     verify: bool = True,
+    neighbour_step_k: float | None = None,
 ) -> State:
     """Equilibrium of ``problem``'s bulk at (P [Pa], T [K]), warm-started from ``warm`` when it fits.
 
+    With ``neighbour_step_k`` = δ the standard states at T ± δ come along (one vectorized
+    evaluation with T's own), for the branch slopes of :func:`path_derivatives`.
     No validity-domain check (callers check their requested range once).
     Raises :class:`ConvergenceError` or :class:`CompositionError` from the minimizer.
     """
     w = warm.eq if warm is not None and warm.eq.system is problem.system else None
+    standard, neighbours = None, None
+    if neighbour_step_k is not None:
+        d = float(neighbour_step_k)
+        three = standard_state(problem.system.params, pressure_pa,
+                               np.array([temperature_k, temperature_k - d, temperature_k + d]))
+        fields = StandardState.__dataclass_fields__
+        standard = StandardState(*(getattr(three, f)[0] for f in fields))
+        neighbours = (StandardState(*(getattr(three, f)[1:] for f in fields)), d)
     eq = equilibrate(problem.system, pressure_pa, temperature_k, problem.bulk_mol, warm=w, options=options,
-                     verify=verify)
-    return State(eq, assemblage_properties(eq))
+                     verify=verify, standard=standard)
+    return State(eq, assemblage_properties(eq), neighbours)
 
 
-# ------------------------------------------------------------------ parcels
 def oxide_mass_kg(oxides: tuple[str, ...], mol) -> float:
     """Mass [kg] of ``mol`` moles of the given oxides."""
     return float(np.dot(np.asarray(mol, float), [oxide_molar_mass_g_per_mol(o) for o in oxides])) / 1000.0
@@ -216,7 +229,9 @@ def path_derivatives(problem: Problem, state: State, delta_k: float = 0.02,
 
 def _analytic_derivatives(state: State, delta_k: float, effective_slope: bool = True) -> Derivatives:
     rates = branch_rates(state.eq)
-    cf_slope, ce_slope = branch_slopes(state.eq, rates, delta_k, effective_slope)
+    neighbours = state.neighbours if state.neighbours is not None and state.neighbours[1] == delta_k else None
+    cf_slope, ce_slope = branch_slopes(state.eq, rates, delta_k, effective_slope,
+                                       neighbours[0] if neighbours else None)
     m, t = state.mass_kg, state.temperature_k
     cp_eff = rates.heat_capacity_effective_j_per_k / m
     return Derivatives(

@@ -267,10 +267,11 @@ class _LazyKernelArgs(dict):
 
 
 class _Solver:
-    def __init__(self, system: PhaseSystem, p, t, bulk, options: SolverOptions):
+    def __init__(self, system: PhaseSystem, p, t, bulk, options: SolverOptions,
+                 standard: StandardState | None = None):
         self.s, self.p, self.t, self.opt = system, p, t, options
         self.bulk = np.asarray(bulk, float)
-        self.std = standard_state(system.params, p, t)
+        self.std = standard if standard is not None else standard_state(system.params, p, t)
         self.g0 = self.std.g_j_per_mol
         self.evals = 0
         self.pool = list(_start_pool(system, self.bulk))
@@ -592,6 +593,7 @@ def equilibrate(
     warm: Equilibrium | None = None,
     options: SolverOptions | None = None,
     verify: bool = True,
+    standard: StandardState | None = None,
 ) -> Equilibrium:
     """Stable assemblage of minimum Gibbs energy at fixed P, T and bulk composition.
 
@@ -611,6 +613,8 @@ def equilibrate(
     warm : Equilibrium, optional
         A previous result whose phases are tried first.
     options : SolverOptions, optional
+    standard : StandardState, optional
+        The standard state of ``system.params`` at this (P, T), when the caller has it already.
 
     Raises
     ------
@@ -621,7 +625,7 @@ def equilibrate(
     """
     opt = options or SolverOptions()
     t0 = time.perf_counter()
-    solver = _Solver(system, float(pressure_pa), float(temperature_k), bulk_mol, opt)
+    solver = _Solver(system, float(pressure_pa), float(temperature_k), bulk_mol, opt, standard)
     diag = {"outer_iterations": 0, "warm_start_used": False}
     if warm is not None and warm.system is system and not verify:
         polished = _polish(solver, [PhaseState(p.name, p.model, p.solution_index, p.amount_mol.copy())

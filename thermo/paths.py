@@ -241,7 +241,7 @@ class _PathRun:
         self.final_mass = 1.0
 
     def start(self, t: float) -> None:
-        first = solve_state(self.pb, self.p_pa, t)
+        first = solve_state(self.pb, self.p_pa, t, neighbour_step_k=self.cfg.delta_k)
         self.h_initial = first.enthalpy_j * self.scale
         self.first_state = first
         self._record(first, "start", None)
@@ -251,7 +251,7 @@ class _PathRun:
         for _ in range(1000):
             if self.exhausted_at is not None or self.prev.temperature_k <= t:
                 return
-            low = solve_state(self.pb, self.p_pa, t, warm=self._warm(t))
+            low = solve_state(self.pb, self.p_pa, t, warm=self._warm(t), neighbour_step_k=self.cfg.delta_k)
             found = self.finder.locate(self.pb, self.prev, low, self.prev_names)
             if not found:
                 self._record(low, "grid", None)

@@ -159,11 +159,13 @@ def predict(eq: Equilibrium, rates: BranchRates, temperature_k: float) -> Equili
     return replace(eq, phases=phases, mu=eq.mu + dt * rates.mu_rate, temperature_k=temperature_k)
 
 
-def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float, effective: bool = True) -> tuple[float, float]:
+def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float, effective: bool = True,
+                  neighbours: StandardState | None = None) -> tuple[float, float]:
     """d(C_frozen)/dT and d²H/dT² [J/K²] on the branch, central differences of exact rates at T ± δ.
 
     d(C_frozen)/dT = Σ n_i dCp°_i/dT + Σ Cp°_i ṅ_i, with dCp°/dT a central difference of the standard
-    state. d²H/dT² (only if ``effective``; NaN otherwise) is the central difference of the exact dH/dT
+    state (``neighbours``: the standard states at T − δ and T + δ, if the caller has them). d²H/dT² (only if
+    ``effective``; NaN otherwise) is the central difference of the exact dH/dT
     at the predicted states. Raises :class:`SingularBranch` when a phase's amount would change by more
     than 10 % over δ (a boundary close by: one-sided differences of converged states are the answer there).
     """
@@ -178,7 +180,8 @@ def branch_slopes(eq: Equilibrium, rates: BranchRates, delta_k: float, effective
                 fastest = max(fastest, float(np.max(np.abs(nd[live] / ph.amount_mol[live]))))
     if fastest * delta_k > 0.1:
         raise SingularBranch(f"a phase vanishes within {0.1 / fastest:.3g} K of T = {t:.6f} K")
-    std2 = standard_state(eq.system.params, eq.pressure_pa, np.array([t - delta_k, t + delta_k]))
+    std2 = neighbours if neighbours is not None else standard_state(
+        eq.system.params, eq.pressure_pa, np.array([t - delta_k, t + delta_k]))
     dcp_dt = (std2.cp_j_per_mol_k[1] - std2.cp_j_per_mol_k[0]) / (2.0 * delta_k)
     s = eq.system
     frozen_slope = 0.0

@@ -138,7 +138,7 @@ def table_row(problem: Problem, pressure_gpa: float, temperatures_k: np.ndarray,
         warm = states[-1] if states else None
         if warm is not None and derivs[-1].rates is not None:  # moved along its branch: fewer Newton steps
             warm = State(predict(warm.eq, derivs[-1].rates, float(t)), warm.props)
-        states.append(solve_state(problem, p_pa, float(t), warm=warm))
+        states.append(solve_state(problem, p_pa, float(t), warm=warm, neighbour_step_k=delta_k))
         derivs.append(path_derivatives(problem, states[-1], delta_k))
     bounds = [b for up, low in itertools.pairwise(states) for b in finder.locate(problem, up, low)]
     grid = [_values(s, problem, delta_k, d) for s, d in zip(states[::-1], derivs[::-1], strict=True)]
