@@ -419,41 +419,69 @@ def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
     return basis
 
 
-def _polish_system(solver: _Solver, phases: list[PhaseState], z, basis, mu_perp):
+@dataclass
+class _PolishLayout:
+    """What the Newton polish needs that does not change while the phase list stays the same."""
+
+    offs: np.ndarray  # variable offsets per phase (n_phases + 1)
+    is_log: np.ndarray  # (nv,) True for solution endmembers (unknown ln n)
+    stoich: np.ndarray  # (nv, c) oxide moles of every variable's formula unit
+    basis: np.ndarray  # (c, r) span of the phases' compositions
+    template: np.ndarray  # (nv + r, nv + r) Jacobian with the constant coupling blocks filled in
+    pure_g0: np.ndarray  # (nv,) standard μ of pure-phase variables (0 elsewhere)
+    blocks: list  # (slice, kernel args) of each solution phase
+
+    @classmethod
+    def of(cls, solver: _Solver, phases: list[PhaseState]) -> _PolishLayout:
+        s = solver.s
+        sizes = [len(ph.amount_mol) for ph in phases]
+        offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
+        nv = int(offs[-1])
+        basis = _assemblage_basis(solver, phases)
+        c = basis.shape[1]
+        is_log = np.zeros(nv, bool)
+        pure_g0 = np.zeros(nv)
+        rows, blocks = [], []
+        for j, ph in enumerate(phases):
+            sl = slice(offs[j], offs[j + 1])
+            if ph.solution_index < 0:
+                k = s.pure_names.index(ph.model)
+                rows.append(s.pure_stoich[[k]])
+                pure_g0[sl] = solver.g0[k]
+            else:
+                rows.append(s.solutions[ph.solution_index].stoich)
+                is_log[sl] = True
+                blocks.append((sl, solver.kargs[ph.solution_index]))
+        stoich = np.vstack(rows)
+        ab = stoich @ basis
+        template = np.zeros((nv + c, nv + c))
+        template[:nv, nv:] = -ab
+        template[nv:, :nv] = ab.T
+        return cls(offs, is_log, stoich, basis, template, pure_g0, blocks)
+
+
+def _polish_system(solver: _Solver, lay: _PolishLayout, z, mu_perp):
     """Residuals and Jacobian of the equilibrium conditions for unknowns z = (amounts, μ_reduced).
 
     μ = μ_perp + basis·μ_reduced: only the chemical potentials the present phases can fix are
     unknowns; the rest (μ_perp) keeps the linear programme's values, which certify minimality
-    when the assemblage spans fewer components than the system.
+    when the assemblage spans fewer components than the system. Rows: μ_i(phase) − a_i·μ for every
+    variable (pure phases: G° − a·μ), then basisᵀ(Σ a n − b).
     """
-    s = solver.s
-    c = basis.shape[1]
-    sizes = [len(ph.amount_mol) for ph in phases]
-    offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
-    nv = offs[-1]
-    r = np.zeros(nv + c)
-    jac = np.zeros((nv + c, nv + c))
-    mu = mu_perp + basis @ z[nv:]
-    mass = -solver.bulk.copy()
-    for j, ph in enumerate(phases):
-        sl = slice(offs[j], offs[j + 1])
-        n = z[sl]
-        if ph.solution_index < 0:
-            k = s.pure_names.index(ph.model)
-            a = s.pure_stoich[k][None]
-            r[sl] = solver.g0[k] - a @ mu
-        else:
-            sp = s.solutions[ph.solution_index]
-            a = sp.stoich
-            muj, hj = _mu_jacobian(solver.kargs[ph.solution_index], n[None])
-            solver.evals += len(n) + 1
-            r[sl] = muj[0] - a @ mu
-            jac[sl, sl] = hj[0]
-        jac[sl, nv:] = -a @ basis
-        jac[nv:, sl] = (a @ basis).T
-        mass += a.T @ n
-    r[nv:] = basis.T @ mass
-    return r, jac, offs, mass
+    nv = int(lay.offs[-1])
+    n = z[:nv]
+    mu = mu_perp + lay.basis @ z[nv:]
+    jac = lay.template.copy()
+    r = np.empty(len(z))
+    r[:nv] = lay.pure_g0 - lay.stoich @ mu
+    for sl, kargs in lay.blocks:
+        muj, hj = _mu_jacobian(kargs, n[None, sl])
+        solver.evals += sl.stop - sl.start + 1
+        r[sl] += muj[0]
+        jac[sl, sl] = hj[0]
+    mass = lay.stoich.T @ n - solver.bulk
+    r[nv:] = lay.basis.T @ mass
+    return r, jac, mass
 
 
 def _merge_twins(solver: _Solver, phases: list[PhaseState], tol: float = 1e-5) -> bool:
@@ -486,36 +514,37 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
     scale_b = np.abs(solver.bulk).max()
     tiny = 1e-300
     mu_full = np.asarray(mu0, float).copy()
+    lay, layout_of = None, None
     for _ in range(solver.opt.polish_iter):
-        basis = _assemblage_basis(solver, phases)
+        if layout_of != [ph.model for ph in phases]:
+            lay, layout_of = _PolishLayout.of(solver, phases), [ph.model for ph in phases]
+        basis, offs, is_log = lay.basis, lay.offs, lay.is_log
         mu_r = basis.T @ mu_full
         mu_perp = mu_full - basis @ mu_r
         z = np.concatenate([*(ph.amount_mol for ph in phases), mu_r])
-        r, jac, offs, mass = _polish_system(solver, phases, z, basis, mu_perp)
-        nv = offs[-1]
-        negligible = [j for j, ph in enumerate(phases) if ph.amount_mol.sum() < 1e-12 * scale_b]
-        if negligible and len(phases) > 1:
-            del phases[negligible[0]]
+        r, jac, mass = _polish_system(solver, lay, z, mu_perp)
+        nv = int(offs[-1])
+        totals_phase = np.array([ph.amount_mol.sum() for ph in phases])
+        negligible = np.flatnonzero(totals_phase < 1e-12 * scale_b)
+        if negligible.size and len(phases) > 1:
+            del phases[int(negligible[0])]
             continue
         if _merge_twins(solver, phases):
             continue
-        if np.abs(r[:nv]).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
+        mass_ok = np.abs(mass).max() < solver.opt.mass_tol * scale_b
+        if mass_ok and np.abs(r[:nv]).max() < 1e-7:
             return phases, mu_full
-        is_log = np.zeros(nv, bool)
-        totals = np.zeros(nv)
-        for j, ph in enumerate(phases):
-            is_log[offs[j]: offs[j + 1]] = ph.solution_index >= 0
-            totals[offs[j]: offs[j + 1]] = ph.amount_mol.sum()
+        totals = np.repeat(totals_phase, np.diff(offs))
         amounts = np.maximum(z[:nv], tiny)
         # endmembers below 1e-30 of their phase are negligible: frozen, their residual ignored
         frozen = is_log & (amounts < 1e-30 * totals)
-        if np.abs(np.where(frozen, 0.0, r[:nv])).max() < 1e-7 and np.abs(mass).max() < solver.opt.mass_tol * scale_b:
+        if mass_ok and np.abs(np.where(frozen, 0.0, r[:nv])).max() < 1e-7:
             return phases, mu_full
         jac[:, :nv][:, is_log] *= amounts[is_log]
         act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
         dz = np.zeros(len(z))
         try:
-            dz[act] = np.linalg.solve(jac[np.ix_(act, act)], -r[act])
+            dz[act] = np.linalg.solve(jac[np.ix_(act, act)] if frozen.any() else jac, -r[act])
         except np.linalg.LinAlgError:
             return None
         if not np.all(np.isfinite(dz)):
@@ -534,14 +563,11 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
                 del phases[j]
                 continue
             alpha *= 0.99 * ratio[k]
+        new_amounts = np.where(is_log, amounts * np.exp(alpha * np.where(is_log, step, 0.0)), amounts + alpha * step)
         for j, ph in enumerate(phases):
-            sl = slice(offs[j], offs[j + 1])
-            if ph.solution_index >= 0:
-                ph.amount_mol = amounts[sl] * np.exp(alpha * step[sl])
-            else:
-                ph.amount_mol = amounts[sl] + alpha * step[sl]
+            ph.amount_mol = new_amounts[offs[j]: offs[j + 1]]
         mu_full = mu_perp + basis @ (mu_r + alpha * dz[nv:])
-        totals = np.array([ph.amount_mol.sum() for ph in phases])
+        totals = np.add.reduceat(new_amounts, offs[:-1])
         if len(phases) > 1 and totals.min() < 1e-13 * scale_b:
             del phases[int(np.argmin(totals))]
     return None
