@@ -321,18 +321,20 @@ class _Solver:
         for si, ph in enumerate(self.s.solutions):
             pool = self.pool[si]
             target = ph.stoich @ mu
-            d = _driving_force(self.kargs[si], pool, target)
-            self.evals += len(pool)
-            if si in self.probes:
-                order = np.argsort(d)[:1]
+            probes = self.probes.get(si)
+            if probes is not None:
+                # warm check: last step's local minimizers are the main starts, plus the best sampled point
+                both = np.concatenate([probes, pool])
+                d_all = _driving_force(self.kargs[si], both, target)
+                self.evals += len(both)
+                k = len(probes) + int(np.argmin(d_all[len(probes):]))
+                keep = np.append(np.arange(len(probes)), k)
+                starts, d_starts = both[keep], d_all[keep]
             else:  # cold: the best sampled points and every (inset) vertex, so no corner is left unexplored
+                d = _driving_force(self.kargs[si], pool, target)
+                self.evals += len(pool)
                 order = np.unique(np.concatenate([np.argsort(d)[: self.opt.starts], np.arange(ph.model.size)]))
-            starts, d_starts = pool[order], d[order]
-            if si in self.probes:
-                # warm check: last step's local minimizers are the main starts
-                dp = _driving_force(self.kargs[si], self.probes[si], target)
-                self.evals += len(dp)
-                starts, d_starts = np.vstack([self.probes[si], starts]), np.concatenate([dp, d_starts])
+                starts, d_starts = pool[order], d[order]
             if d_starts.min() > skip_above and not (extra_starts and si in extra_starts):
                 out.append((starts, d_starts))
                 continue
