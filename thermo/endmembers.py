@@ -37,7 +37,7 @@ from functools import cached_property
 
 import numpy as np
 
-from thermo import liquid_eos, ordering
+from thermo import kernels, liquid_eos, ordering
 
 T_REF_K = 298.15
 #: Default relative temperature coefficient β of liquid bulk moduli [1/K] (see thermo.liquid_eos).
@@ -68,6 +68,27 @@ class EndmemberParameters:
     order: np.ndarray = field(default_factory=lambda: np.zeros((0, 6)))  # rows: dh, dv, w, wv, n, factor
     #: rows: volume factor, bulk-modulus factor, β [1/K] of liquids (thermo.liquid_eos); empty: 1, 1, default β
     liquid_volume: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+
+    @cached_property
+    def compiled_rows(self) -> np.ndarray:
+        """The parameters as the (27, n) array of :func:`thermo.kernels.standard_state_rows`."""
+        n = len(self.names)
+        rows = np.full((27, n), np.nan)
+        rows[0] = self.is_liquid.astype(float)
+        for i, col in enumerate((self.n_atoms, self.h0, self.s0, self.v0, self.cp_a, self.cp_b, self.cp_c,
+                                 self.cp_d, self.alpha0, self.k0_pa, self.k0_prime, self.k0_dprime_per_pa), 1):
+            rows[i] = col
+        table = self.liquid_volume if self.liquid_volume.size else np.tile([1.0, 1.0, LIQUID_DK_DT_PER_K], (n, 1))
+        rows[13:16] = table.T
+        if self.landau.size:
+            rows[16:19] = self.landau.T
+        if self.order.size:
+            rows[19:25] = self.order.T
+            has = ~np.isnan(self.order[:, 0])
+            if has.any():
+                g_ref, s_ref = ordering._reference_arrays(*[self.order[has, k] for k in range(6)])
+                rows[25, has], rows[26, has] = g_ref, s_ref
+        return np.ascontiguousarray(rows)
 
     @cached_property
     def state_groups(self) -> tuple[tuple[np.ndarray, EndmemberParameters], ...]:
@@ -169,6 +190,10 @@ def _liquid_volume_terms(p, t, prm: EndmemberParameters):
 def standard_state(params: EndmemberParameters, pressure_pa, temperature_k) -> StandardState:
     """Standard-state properties of every endmember in ``params`` at (P, T).
 
+    One pressure and one or a few temperatures (what the minimizer asks for) go through the
+    compiled :func:`thermo.kernels.standard_state_rows`; grids through the vectorized numpy
+    evaluation :func:`standard_state_grid` (the two agree to round-off; tests/thermo/test_kernels.py).
+
     Parameters
     ----------
     params : EndmemberParameters
@@ -182,6 +207,40 @@ def standard_state(params: EndmemberParameters, pressure_pa, temperature_k) -> S
         Arrays of shape ``broadcast(P, T).shape + (n,)``. Out-of-range inputs
         are not refused here (see :mod:`thermo.validity`); where the equation of
         state has no real solution the result is NaN.
+    """
+    if np.ndim(pressure_pa) == 0 and np.ndim(temperature_k) <= 1:
+        return _standard_state_compiled(params, float(pressure_pa), temperature_k)
+    return standard_state_grid(params, pressure_pa, temperature_k)
+
+
+def _standard_state_compiled(params: EndmemberParameters, pressure_pa: float, temperature_k) -> StandardState:
+    temps = np.ascontiguousarray(np.atleast_1d(np.asarray(temperature_k, float)))
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        g, s, cp, v, dvdt, dvdp = kernels.standard_state_rows(
+            pressure_pa, temps, params.compiled_rows, T_REF_K, _EINSTEIN_A, _EINSTEIN_B, ordering.Q_GRID,
+            ordering.R)
+        if np.ndim(temperature_k) == 0:
+            g, s, cp, v, dvdt, dvdp = g[0], s[0], cp[0], v[0], dvdt[0], dvdp[0]
+            t = float(temperature_k)
+        else:
+            t = temps[:, None]
+        return StandardState(g_j_per_mol=g, h_j_per_mol=g + t * s, s_j_per_mol_k=s, cp_j_per_mol_k=cp,
+                             v_m3_per_mol=v, alpha_per_k=dvdt / v, k_t_pa=-v / dvdp)
+
+
+def standard_state_grid(params: EndmemberParameters, pressure_pa, temperature_k) -> StandardState:
+    """:func:`standard_state` for any broadcastable (P, T), vectorized with numpy (the reference evaluation).
+
+    Parameters
+    ----------
+    params : EndmemberParameters
+    pressure_pa, temperature_k : array_like
+        Pressure [Pa] and temperature [K]; broadcast against each other.
+
+    Returns
+    -------
+    StandardState
+        Arrays of shape ``broadcast(P, T).shape + (n,)``.
     """
     p = np.asarray(pressure_pa, float)[..., None]
     t = np.asarray(temperature_k, float)[..., None]

@@ -405,3 +405,139 @@ def warm_up() -> None:
                          np.linspace(0.0, 0.99, 5), 8.314, 2)
     bragg_williams_state(one * 1e5, one * 1000.0, one * 1e4, one * 0.0, one * 1e3, one * 0.0, one, one,
                          np.linspace(0.0, 0.99, 5), 8.314, 2)
+    rows = np.ones((27, 1))
+    rows[16:25] = np.nan
+    standard_state_rows(1e5, np.array([1000.0]), rows, 298.15, 10636.0, 6.44, np.linspace(0.0, 0.99, 5), 8.314)
+
+
+# ----------------------------------------------------------------- standard state at one pressure
+@njit(cache=True, error_model="numpy")
+def standard_state_rows(p, temps, prm, t_ref, einstein_a, einstein_b, q_grid, r_gas):
+    """G, S, Cp, V, ∂V/∂T, ∂V/∂P (each (len(temps), n)) of n endmembers at pressure ``p`` [Pa].
+
+    The formulas of :mod:`thermo.endmembers`, :mod:`thermo.liquid_eos` and :mod:`thermo.ordering`
+    (Holland & Powell 2011, J. Metamorph. Geol. 29:333, Eqs. 3-5; Holland & Powell 1998, J.
+    Metamorph. Geol. 16:309, Eqs. 8-11; Holland & Powell 1996, Am. Mineral. 81:1413), element by
+    element, in the same order of operations. ``prm`` (27, n) rows: is_liquid, n_atoms, h0, s0, v0,
+    cp a, b, c, d, α0, K0, K′, K″, liquid volume factor, liquid K factor, liquid β, Landau Tc0,
+    Smax, Vmax (NaN: none), Bragg-Williams ΔH, ΔV, W, Wv, n, factor (NaN: none), and its reference
+    G and S at 298.15 K and 1 bar. NaN where an equation of state has no real solution.
+    """
+    n = prm.shape[1]
+    k = temps.shape[0]
+    g_out, s_out, cp_out = np.empty((k, n)), np.empty((k, n)), np.empty((k, n))
+    v_out, dvdt_out, dvdp_out = np.empty((k, n)), np.empty((k, n)), np.empty((k, n))
+    one = np.ones(1)
+    for it in range(k):
+        t = temps[it]
+        for e in range(n):
+            h0, s0, v0 = prm[2, e], prm[3, e], prm[4, e]
+            a, b, c, d = prm[5, e], prm[6, e], prm[7, e], prm[8, e]
+            cp = a + b * t + c / t**2 + d / np.sqrt(t)
+            icp = (a * (t - t_ref) + 0.5 * b * (t**2 - t_ref**2) - c * (1.0 / t - 1.0 / t_ref)
+                   + 2.0 * d * (np.sqrt(t) - np.sqrt(t_ref)))
+            icpt = (a * np.log(t / t_ref) + b * (t - t_ref) - 0.5 * c * (1.0 / t**2 - 1.0 / t_ref**2)
+                    - 2.0 * d * (1.0 / np.sqrt(t) - 1.0 / np.sqrt(t_ref)))
+            g = h0 + icp - t * (s0 + icpt)
+            s = s0 + icpt
+            alpha0, k0, kp, kpp = prm[9, e], prm[10, e], prm[11, e], prm[12, e]
+            if prm[0, e] > 0.5:  # liquid: isothermal Tait about the 1-bar state (thermo.liquid_eos)
+                v0l, k0l, beta = v0 * prm[13, e], k0 * prm[14, e], prm[15, e]
+                dt = t - t_ref
+                kk = k0l * (1.0 - beta * dt)
+                v1 = v0l * np.exp(alpha0 * dt)
+                if not kk > 0.0:
+                    kk = np.nan
+                big_b = kp * (kp + 2.0) / (kp + 1.0)
+                cc = 1.0 / (kp * (kp + 2.0))
+                y = big_b * p / kk
+                ln1y = np.log1p(y)
+                f = -kp * y + (1.0 + kp) * np.expm1((1.0 - cc) * ln1y) / (1.0 - cc)
+                f1 = -kp + (1.0 + kp) * np.exp(-cc * ln1y)
+                f2 = -(1.0 + kp) * cc * np.exp((-cc - 1.0) * ln1y)
+                u = v1 * kk / big_b
+                kappa = -beta * k0l / kk
+                dg = u * ((alpha0 + kappa) * f - kappa * y * f1)
+                d2g = u * ((alpha0 * alpha0 + 2.0 * alpha0 * kappa) * f - 2.0 * alpha0 * kappa * y * f1
+                           + kappa**2 * y**2 * f2)
+                gv, sv, cpv = u * f, -dg, -t * d2g
+                v = v1 * f1
+                dvdt = v1 * (alpha0 * f1 - kappa * y * f2)
+                dvdp = v1 * f2 * big_b / kk
+            else:  # solid: modified Tait with Einstein thermal pressure (HP2011 Eqs. 3-5)
+                ta = (1.0 + kp) / (1.0 + kp + k0 * kpp)
+                tb = kp / k0 - kpp / (1.0 + kp)
+                tc = (1.0 + kp + k0 * kpp) / (kp**2 + kp - k0 * kpp)
+                theta = einstein_a / (s0 / prm[1, e] + einstein_b)
+                u0 = theta / t_ref
+                eu0 = np.exp(u0)
+                xi0 = u0**2 * eu0 / (eu0 - 1.0) ** 2
+                u = theta / t
+                eu = np.exp(u)
+                pth = alpha0 * k0 * theta / xi0 * (1.0 / (eu - 1.0) - 1.0 / (np.exp(u0) - 1.0))
+                xi = u**2 * eu / (eu - 1.0) ** 2
+                dpth = alpha0 * k0 * xi / xi0
+                dxi_dt = xi * (2.0 / u + 1.0 - 2.0 * eu / (eu - 1.0)) * (-u / t)
+                d2pth = alpha0 * k0 / xi0 * dxi_dt
+                x = 1.0 + tb * (p - pth)
+                yy = 1.0 - tb * pth
+                gv = p * v0 * (1.0 - ta) + v0 * ta * (yy ** (1.0 - tc) - x ** (1.0 - tc)) / (tb * (tc - 1.0))
+                v = v0 * (1.0 - ta + ta * x ** (-tc))
+                sv = -v0 * ta * dpth * (yy ** (-tc) - x ** (-tc))
+                gtt = v0 * ta * (d2pth * (yy ** (-tc) - x ** (-tc))
+                                 + tb * tc * dpth**2 * (yy ** (-tc - 1.0) - x ** (-tc - 1.0)))
+                cpv = -t * gtt
+                dvdt = v0 * ta * tb * tc * dpth * x ** (-tc - 1.0)
+                dvdp = -v0 * ta * tb * tc * x ** (-tc - 1.0)
+            g += gv
+            s += sv
+            cp += cpv
+            tc0 = prm[16, e]
+            if not np.isnan(tc0):  # Landau tricritical term (HP1998 Eqs. 8-11)
+                smax, vmax = prm[17, e], prm[18, e]
+                tcp = tc0 + vmax * p / smax
+                q0sq = np.sqrt(1.0 - t_ref / tc0)
+                ratio = max(1.0 - t / tcp, 0.0)
+                qsq = np.sqrt(ratio)
+                q6 = qsq**3
+                gl = smax * ((t - tcp) * qsq + tcp * q6 / 3.0) + smax * tc0 * (q0sq - q0sq**3 / 3.0) - t * smax * q0sq
+                gl = gl + p * vmax * q0sq
+                if ratio > 0.0:
+                    dqsq_dt = -0.5 / (tcp * np.sqrt(ratio))
+                    dqsq_dtc = 0.5 * t / (tcp**2 * np.sqrt(ratio))
+                else:
+                    dqsq_dt = 0.0
+                    dqsq_dtc = 0.0
+                g += gl
+                s += smax * (q0sq - qsq)
+                cp += -t * smax * dqsq_dt
+                v += vmax * (q0sq - qsq + q6 / 3.0)
+                dvdt += vmax * (qsq**2 - 1.0) * dqsq_dt
+                dvdp += vmax * (qsq**2 - 1.0) * dqsq_dtc * vmax / smax
+            dh = prm[19, e]
+            if not np.isnan(dh):  # Bragg-Williams term relative to 298.15 K, 1 bar (HP1996)
+                dv, w, wv, nn, fac = prm[20, e], prm[21, e], prm[22, e], prm[23, e], prm[24, e]
+                q = bragg_williams_order(one * p, one * t, one * dh, one * dv, one * w, one * wv, one * nn,
+                                         one * fac, q_grid, r_gas, 40)[0]
+                gb, _, gqq = _bw_terms(q, p, t, dh, dv, w, wv, nn, fac, r_gas)
+                xa1 = (1.0 + nn * q) / (1.0 + nn)
+                xb1 = nn * (1.0 - q) / (1.0 + nn)
+                xa2 = (1.0 - q) / (1.0 + nn)
+                xb2 = (nn + q) / (1.0 + nn)
+                sb = -r_gas * fac * (_xlogx(xa1) + _xlogx(xb1) + nn * (_xlogx(xa2) + _xlogx(xb2)))
+                kk2 = nn / (1.0 + nn)
+                dsb = -r_gas * fac * kk2 * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
+                g_ref, s_ref = prm[25, e], prm[26, e]
+                h_ref = g_ref + t_ref * s_ref
+                dq_dt = dsb / gqq
+                dv_dq = -dv + wv * (1.0 - 2.0 * q)
+                dq_dp = -dv_dq / gqq
+                g += gb - (h_ref - t * s_ref)
+                s += sb - s_ref
+                cp += t * dsb * dq_dt
+                v += dv * (1.0 - q) + wv * q * (1.0 - q)
+                dvdt += dv_dq * dq_dt
+                dvdp += dv_dq * dq_dp
+            g_out[it, e], s_out[it, e], cp_out[it, e] = g, s, cp
+            v_out[it, e], dvdt_out[it, e], dvdp_out[it, e] = v, dvdt, dvdp
+    return g_out, s_out, cp_out, v_out, dvdt_out, dvdp_out

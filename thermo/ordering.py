@@ -103,7 +103,7 @@ def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
     return g, gq, gqq, s, ds
 
 
-_Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
+Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
 
 
 def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 40):
@@ -117,7 +117,7 @@ def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iter
         np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
     )
     flat = [np.ascontiguousarray(a, dtype=float).ravel() for a in arrays]
-    q = kernels.bragg_williams_order(*flat, _Q_GRID, R, iterations)
+    q = kernels.bragg_williams_order(*flat, Q_GRID, R, iterations)
     return q.reshape(arrays[0].shape)
 
 
@@ -127,7 +127,7 @@ def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):
         np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
     )
     flat = [np.ascontiguousarray(a, dtype=float).ravel() for a in arrays]
-    out = kernels.bragg_williams_state(*flat, _Q_GRID, R, 40)
+    out = kernels.bragg_williams_state(*flat, Q_GRID, R, 40)
     return tuple(v.reshape(arrays[0].shape) for v in out)
 
 
