@@ -89,15 +89,16 @@ def _wt_percent(components, moles):
     return {c: float(100.0 * m / total) for c, m in zip(components, masses, strict=True) if m > 0}
 
 
-def _solution_terms(model: SolutionModel, frac: np.ndarray, g0: np.ndarray, t: float, p: float):
+def _solution_terms(model: SolutionModel, frac: np.ndarray, g0: np.ndarray, t: float, p: float,
+                    args: tuple | None = None):
     """G [J/mol], S_conf, S_ex [J/(mol K)] and V_ex [m³/mol] of a solution at composition ``frac``.
 
     The terms of :mod:`thermo.solutions` through the compiled kernels: G = Σ p_i μ_i,
     S_conf = −R Σ p_i ln a_i(ideal), S_ex = Σ p_i μ_ex,i(W_S), V_ex = Σ p_i μ_ex,i(W_V).
     """
     x = np.ascontiguousarray(frac[None], dtype=float)
-    args = model.kernel_args(t, p)
-    static = args[:6]
+    args = args[:8] if args is not None else model.kernel_args(t, p)  # (static, C, has_ex) of the kernels
+    static = model.static_kernel_args
     zeros, no_g0 = np.zeros((model.size, model.size)), np.zeros(model.size)
     g = float(frac @ kernels.chemical_potentials(x, *args, np.ascontiguousarray(g0, dtype=float), R * t)[0])
     s_conf = -float(frac @ kernels.chemical_potentials(x, *static, zeros, False, no_g0, R)[0])
@@ -120,7 +121,8 @@ def _phase_properties(eq: Equilibrium, ph: PhaseState) -> PhaseProperties:
         sp = s.solutions[ph.solution_index]
         idx, stoich, mass = sp.endmember_index, sp.stoich, sp.molar_mass
         frac = ph.amount_mol / ph.amount_mol.sum()
-        g, s_conf, s_ex, v_ex = _solution_terms(sp.model, frac, std.g_j_per_mol[idx], t, p)
+        g, s_conf, s_ex, v_ex = _solution_terms(sp.model, frac, std.g_j_per_mol[idx], t, p,
+                                                eq.solution_kernel_args(ph.solution_index))
         names, liquid = sp.model.endmembers, sp.model.is_liquid
     entropy = float(frac @ std.s_j_per_mol_k[idx]) + s_conf + s_ex
     vol = float(frac @ std.v_m3_per_mol[idx]) + v_ex

@@ -86,6 +86,16 @@ class Equilibrium:
     standard: StandardState
     diagnostics: dict = field(default_factory=dict)
     probes: dict = field(default_factory=dict)  # solution index -> best compositions found by the last check
+    # solution index -> thermo.kernels arguments at this (P, T) (derived data; reused by property code)
+    kernel_args: dict = field(default_factory=dict, repr=False, compare=False)
+
+    def solution_kernel_args(self, si: int) -> tuple:
+        """Kernel arguments of solution ``si`` at this equilibrium's (P, T) and standard state."""
+        if si not in self.kernel_args:
+            ph = self.system.solutions[si]
+            self.kernel_args[si] = _kernel_args(ph, self.standard.g_j_per_mol[ph.endmember_index],
+                                                self.temperature_k, self.pressure_pa)
+        return self.kernel_args[si]
 
 
 # ------------------------------------------------------------ solution helpers
@@ -327,9 +337,12 @@ class _Solver:
                 both = np.concatenate([probes, pool])
                 d_all = _driving_force(self.kargs[si], both, target)
                 self.evals += len(both)
-                k = len(probes) + int(np.argmin(d_all[len(probes):]))
-                keep = np.append(np.arange(len(probes)), k)
-                starts, d_starts = both[keep], d_all[keep]
+                n_probes = len(probes)
+                k = n_probes + int(d_all[n_probes:].argmin())
+                starts, d_starts = both[: k + 1], d_all[: k + 1]
+                if k > n_probes:  # the probes and the best sampled point only
+                    starts = np.concatenate([starts[:n_probes], starts[k:]])
+                    d_starts = np.concatenate([d_starts[:n_probes], d_starts[k:]])
             else:  # cold: the best sampled points and every (inset) vertex, so no corner is left unexplored
                 d = _driving_force(self.kargs[si], pool, target)
                 self.evals += len(pool)
@@ -540,7 +553,8 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         amounts = np.maximum(z[:nv], tiny)
         # endmembers below 1e-30 of their phase are negligible: frozen, their residual ignored
         frozen = is_log & (amounts < 1e-30 * totals)
-        if mass_ok and np.abs(np.where(frozen, 0.0, r[:nv])).max() < 1e-7:
+        r_live = np.where(frozen, 0.0, r[:nv])
+        if mass_ok and np.abs(r_live).max() < 1e-7:
             return phases, mu_full
         jac[:, :nv][:, is_log] *= amounts[is_log]
         act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
@@ -572,6 +586,10 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         totals = np.add.reduceat(new_amounts, offs[:-1])
         if len(phases) > 1 and totals.min() < 1e-13 * scale_b:
             del phases[int(np.argmin(totals))]
+        elif alpha == 1.0 and np.abs(r_live).max() < 1e-5 and np.abs(mass).max() < 1e-9 * scale_b:
+            # a full Newton step from residuals this small leaves ~1e-10 J/mol (quadratic convergence):
+            # the state after it is converged without evaluating the system once more
+            return phases, mu_full
     return None
 
 
@@ -795,5 +813,6 @@ def _finish(solver, phases, mu, found, pure_d, diag, t0):
         wall_time_s=time.perf_counter() - t0,
     )
     return Equilibrium(
-        solver.s, solver.p, solver.t, solver.bulk, _name_instances(phases), mu, solver.std, diag, _probes(found)
+        solver.s, solver.p, solver.t, solver.bulk, _name_instances(phases), mu, solver.std, diag, _probes(found),
+        dict(solver.kargs),
     )

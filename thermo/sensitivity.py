@@ -63,7 +63,7 @@ def _partial_molar(eq: Equilibrium, ph: PhaseState, std: StandardState, t: float
     sp = s.solutions[ph.solution_index]
     idx, model = sp.endmember_index, sp.model
     x = np.ascontiguousarray(ph.amount_mol[None], dtype=float)
-    static = model.kernel_args(t, p)[:6]
+    static = model.static_kernel_args
     zeros, no_g0 = np.zeros((model.size, model.size)), np.zeros(model.size)
     r_ln_a = kernels.chemical_potentials(x, *static, zeros, False, no_g0, R)[0]  # R ln a_i (ideal)
     s_bar = std.s_j_per_mol_k[idx] - r_ln_a
@@ -108,7 +108,8 @@ def branch_rates(eq: Equilibrium, phases: list[PhaseState] | None = None, std: S
         jac[nv:, sl] = ab.T
         if ph.solution_index >= 0:
             sp = s.solutions[ph.solution_index]
-            kargs = _kernel_args(sp, std.g_j_per_mol[sp.endmember_index], t, p)
+            kargs = (eq.solution_kernel_args(ph.solution_index) if std is eq.standard
+                     else _kernel_args(sp, std.g_j_per_mol[sp.endmember_index], t, p))
             _, h = kernels.chemical_potentials_jacobian(np.ascontiguousarray(ph.amount_mol[None], float), *kargs)
             jac[sl, sl] = h[0]
             scale[sl] = ph.amount_mol

@@ -65,6 +65,11 @@ class SolutionModel:
         """Interaction energies W = W_H - T·W_S + P·W_V [J/mol]."""
         return self.w_h - temperature_k * self.w_s + pressure_pa * self.w_v
 
+    @property
+    def static_kernel_args(self) -> tuple:
+        """The parts of the kernel arguments that do not depend on (T, P) (see :meth:`kernel_args`)."""
+        return self._static_kernel_args
+
     @cached_property
     def _static_kernel_args(self) -> tuple:
         c = np.ascontiguousarray
