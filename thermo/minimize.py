@@ -419,13 +419,17 @@ def _name_instances(phases):
 
 # --------------------------------------------------------------- polish stage
 def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
+    return assemblage_basis(solver.s, phases)
+
+
+def assemblage_basis(system: PhaseSystem, phases: list[PhaseState]) -> np.ndarray:
     """Orthonormal basis (c, r) of the compositions the present phases span (cached per phase set)."""
-    cache = solver.s.scratch.setdefault("assemblage_basis", {})
+    cache = system.scratch.setdefault("assemblage_basis", {})
     key = tuple(p.model for p in phases)
     basis = cache.get(key)
     if basis is None:
-        rows = [solver.s.pure_stoich[[solver.s.pure_names.index(p.model)]] if p.solution_index < 0
-                else solver.s.solutions[p.solution_index].stoich for p in phases]
+        rows = [system.pure_stoich[[system.pure_names.index(p.model)]] if p.solution_index < 0
+                else system.solutions[p.solution_index].stoich for p in phases]
         basis = span(np.vstack(rows))
         basis.setflags(write=False)
         if len(cache) >= 512:

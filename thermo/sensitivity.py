@@ -30,8 +30,7 @@ from scipy.constants import R
 
 from thermo import kernels
 from thermo.endmembers import StandardState, standard_state
-from thermo.minimize import Equilibrium, PhaseState, _kernel_args
-from thermo.phases import span
+from thermo.minimize import Equilibrium, PhaseState, _kernel_args, assemblage_basis
 
 #: Endmembers below this fraction of their phase are frozen (no derivative), as in the polish.
 _FROZEN = 1e-30
@@ -88,7 +87,7 @@ def branch_rates(eq: Equilibrium, phases: list[PhaseState] | None = None, std: S
     s, p = eq.system, eq.pressure_pa
     stoich = [s.pure_stoich[[s.pure_names.index(ph.model)]] if ph.solution_index < 0
               else s.solutions[ph.solution_index].stoich for ph in phases]
-    basis = span(np.vstack(stoich))
+    basis = assemblage_basis(s, phases)
     sizes = [len(ph.amount_mol) for ph in phases]
     offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
     nv, c = int(offs[-1]), basis.shape[1]
@@ -118,7 +117,7 @@ def branch_rates(eq: Equilibrium, phases: list[PhaseState] | None = None, std: S
     rows = np.flatnonzero(live)
     dz = np.zeros(nv + c)
     try:
-        dz[rows] = np.linalg.solve(jac[np.ix_(rows, rows)], rhs[rows])
+        dz[rows] = np.linalg.solve(jac[np.ix_(rows, rows)] if rows.size < nv + c else jac, rhs[rows])
     except np.linalg.LinAlgError:
         raise SingularBranch(f"singular equilibrium conditions at T = {t:.6f} K") from None
     if not np.all(np.isfinite(dz)):
