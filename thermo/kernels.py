@@ -307,8 +307,8 @@ def _xlogx(x):
 
 
 @njit(cache=True)
-def _bw_terms(q, p, t, dh, dv, w, wv, n, factor, r_gas):
-    """G, ∂G/∂Q, ∂²G/∂Q² of the Bragg-Williams model at one point (as :func:`thermo.ordering._bw_g`)."""
+def _bw_entropy(q, n, factor, r_gas):
+    """Configurational entropy of the Bragg-Williams model and its first two Q-derivatives at order ``q``."""
     xa1 = (1.0 + n * q) / (1.0 + n)
     xb1 = n * (1.0 - q) / (1.0 + n)
     xa2 = (1.0 - q) / (1.0 + n)
@@ -317,6 +317,13 @@ def _bw_terms(q, p, t, dh, dv, w, wv, n, factor, r_gas):
     k = n / (1.0 + n)
     ds = -r_gas * factor * k * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
     d2s = -r_gas * factor * k * (k / xa1 + k / xb1 + 1.0 / ((1.0 + n) * xa2) + 1.0 / ((1.0 + n) * xb2))
+    return s, ds, d2s
+
+
+@njit(cache=True)
+def _bw_terms(q, p, t, dh, dv, w, wv, n, factor, r_gas):
+    """G, ∂G/∂Q, ∂²G/∂Q² of the Bragg-Williams model at one point (as :func:`thermo.ordering._bw_g`)."""
+    s, ds, d2s = _bw_entropy(q, n, factor, r_gas)
     eh = dh + p * dv
     ew = w + p * wv
     g = eh * (1.0 - q) + ew * q * (1.0 - q) - t * s
@@ -372,14 +379,7 @@ def bragg_williams_state(p, t, dh, dv, w, wv, n, factor, q_grid, r_gas, iteratio
     g, gqq, s, ds = np.empty(size), np.empty(size), np.empty(size), np.empty(size)
     for e in range(size):
         g[e], _, gqq[e] = _bw_terms(q[e], p[e], t[e], dh[e], dv[e], w[e], wv[e], n[e], factor[e], r_gas)
-        nn, qq = n[e], q[e]
-        xa1 = (1.0 + nn * qq) / (1.0 + nn)
-        xb1 = nn * (1.0 - qq) / (1.0 + nn)
-        xa2 = (1.0 - qq) / (1.0 + nn)
-        xb2 = (nn + qq) / (1.0 + nn)
-        s[e] = -r_gas * factor[e] * (_xlogx(xa1) + _xlogx(xb1) + nn * (_xlogx(xa2) + _xlogx(xb2)))
-        k = nn / (1.0 + nn)
-        ds[e] = -r_gas * factor[e] * k * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
+        s[e], ds[e], _ = _bw_entropy(q[e], n[e], factor[e], r_gas)
     return q, g, gqq, s, ds
 
 
@@ -520,13 +520,7 @@ def standard_state_rows(p, temps, prm, t_ref, einstein_a, einstein_b, q_grid, r_
                 q = bragg_williams_order(one * p, one * t, one * dh, one * dv, one * w, one * wv, one * nn,
                                          one * fac, q_grid, r_gas, 40)[0]
                 gb, _, gqq = _bw_terms(q, p, t, dh, dv, w, wv, nn, fac, r_gas)
-                xa1 = (1.0 + nn * q) / (1.0 + nn)
-                xb1 = nn * (1.0 - q) / (1.0 + nn)
-                xa2 = (1.0 - q) / (1.0 + nn)
-                xb2 = (nn + q) / (1.0 + nn)
-                sb = -r_gas * fac * (_xlogx(xa1) + _xlogx(xb1) + nn * (_xlogx(xa2) + _xlogx(xb2)))
-                kk2 = nn / (1.0 + nn)
-                dsb = -r_gas * fac * kk2 * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
+                sb, dsb, _ = _bw_entropy(q, nn, fac, r_gas)
                 g_ref, s_ref = prm[25, e], prm[26, e]
                 h_ref = g_ref + t_ref * s_ref
                 dq_dt = dsb / gqq
