@@ -39,7 +39,12 @@ def _quiet_stdout():
         if _banner_done:
             yield
             return
-        saved = os.dup(1)
+        try:
+            saved = os.dup(1)
+        except OSError:  # no standard output to protect (a daemon with fd 1 closed)
+            _banner_done = True
+            yield
+            return
         try:
             with open(os.devnull, "wb") as null:
                 os.dup2(null.fileno(), 1)
