@@ -109,3 +109,14 @@ def test_compiled_standard_state_equals_the_numpy_evaluation_for_every_endmember
                 np.testing.assert_array_equal(np.isnan(x), np.isnan(y))
                 ok = ~np.isnan(y)
                 assert np.all(np.abs(x[ok] - y[ok]) <= 1e-13 * np.maximum(np.abs(y[ok]), 1e-300)), f
+
+
+def test_the_linear_programme_writes_nothing_to_standard_output():
+    """HiGHS prints a banner when a process makes its first instance; the CLI's JSON on stdout must stay clean."""
+    import subprocess
+    import sys
+
+    code = ("from thermo.equilibrium import prepare, solve_point; "
+            "solve_point(prepare({'SiO2': 50.0, 'MgO': 50.0}), 1.0, 1500.0)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=300, check=True)
+    assert out.stdout == ""
