@@ -71,3 +71,27 @@ def test_a_phase_vanishing_within_the_difference_step_falls_back_to_one_sided_di
     with pytest.raises(SingularBranch):
         branch_slopes(state.eq, branch_rates(state.eq), 0.02)
     assert path_derivatives(PROBLEM, state).stencil == "backward"
+
+
+def test_prediction_along_the_branch_is_second_order_accurate():
+    """From 2000 K at 4 GPa (liquid + olivine + orthopyroxene) towards 1995 and 1997.5 K: the error of the
+    first-order prediction of amounts and μ shrinks as ΔT² (halving ΔT quarters it: ratio < 0.35), that of
+    the unmoved state as ΔT (ratio near 0.5)."""
+    from thermo.sensitivity import predict
+
+    here = solve_state(PROBLEM, 4e9, 2000.0)
+    rates = branch_rates(here.eq)
+
+    def amounts(eq):
+        return np.concatenate([p.amount_mol for p in sorted(eq.phases, key=lambda p: p.name)] + [eq.mu / 1e5])
+
+    errors = {}
+    for dt in (5.0, 2.5):
+        there = solve_state(PROBLEM, 4e9, 2000.0 - dt, warm=here)
+        assert there.signature == here.signature
+        guess = predict(here.eq, rates, 2000.0 - dt)
+        truth = amounts(there.eq)
+        errors[dt] = (np.abs(amounts(guess) - truth).max(), np.abs(amounts(here.eq) - truth).max())
+    assert errors[2.5][0] / errors[5.0][0] < 0.35
+    assert 0.4 < errors[2.5][1] / errors[5.0][1] < 0.6
+    assert errors[5.0][0] < 0.2 * errors[5.0][1]
