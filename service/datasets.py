@@ -42,7 +42,9 @@ def dataset_summary(ds: Dataset) -> dict[str, Any]:
         "title": ds.title,
         "oxides": list(ds.oxides),
         "endmember_count": len(ds.endmembers.names),
-        "validity": {"pressure_gpa": list(ds.pressure_range_gpa), "temperature_k": list(ds.temperature_range_k)},
+        "validity": {"pressure_gpa": list(ds.pressure_range_gpa), "temperature_k": list(ds.temperature_range_k),
+                     **({"melt_model_pressure_gpa": list(ds.melt_model_pressure_range_gpa)}
+                        if ds.melt_model_pressure_range_gpa else {})},
     }
 
 

@@ -23,6 +23,7 @@ from service.schemas import IsentropeRequest, axis_length, axis_values, load_jso
 from service.serializers import MODEL_ESTIMATE_NOTE, bulk_composition_json, isentrope_json
 from thermo.dataset import load_dataset
 from thermo.isentropes import isentrope
+from thermo.validity import melt_model_warnings
 
 blueprint = Blueprint("isentropes", __name__)
 
@@ -52,7 +53,8 @@ def compute_isentrope(req: dict[str, Any], progress: Any = None) -> dict[str, An
     problem = prepare_problem(req)
     iso = isentrope(problem, axis_values(req["pressure_gpa"]), potential_temperature_k=req["potential_temperature_k"],
                     specific_entropy_j_per_kg_k=req["specific_entropy_j_per_kg_k"], progress=progress)
-    provenance = build_provenance(problem.dataset, request_parameters(req), problem_warnings(problem, req["phases"]))
+    provenance = build_provenance(problem.dataset, request_parameters(req), problem_warnings(problem, req["phases"])
+                                  + melt_model_warnings(problem.dataset, axis_values(req["pressure_gpa"])))
     return {
         **isentrope_json(iso),
         "composition": bulk_composition_json(problem.bulk),

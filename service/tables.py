@@ -33,6 +33,7 @@ from service.serializers import MODEL_ESTIMATE_NOTE, bulk_composition_json, tabl
 from thermo.dataset import load_dataset
 from thermo.formats import table_to_csv, table_to_netcdf
 from thermo.tables import FIELDS, PropertyTable, TableSettings, property_table
+from thermo.validity import melt_model_warnings
 
 blueprint = Blueprint("tables", __name__)
 
@@ -128,7 +129,8 @@ def compute_table(req: dict[str, Any], progress: Any = None) -> dict[str, Any]:
     settings = TableSettings(workers=table_processes(len(pressures)))
     table = property_table(problem, pressures, temps[0], temps[-1], len(temps), n_enthalpy=req["indexed_count"],
                            n_entropy=req["indexed_count"], settings=settings, progress=progress)
-    warnings = problem_warnings(problem, req["phases"]) + failed_checks(table.checks)
+    warnings = (problem_warnings(problem, req["phases"]) + failed_checks(table.checks)
+                + melt_model_warnings(problem.dataset, pressures))
     provenance = build_provenance(problem.dataset, request_parameters(req), warnings)
     return {
         **table_json(table, req["variables"], req["boundary_points"]),

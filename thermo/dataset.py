@@ -71,6 +71,8 @@ class Dataset:
     stoichiometry: np.ndarray  # (n_endmembers, n_oxides) moles of oxide per formula unit
     in_system: np.ndarray  # (n_endmembers,) True where the endmember lies inside ``oxides``
     extra: dict[str, Any] = field(default_factory=dict)  # other parsed files, by stem
+    #: pressures [GPa] over which the melt model is calibrated (None: the whole validity domain)
+    melt_model_pressure_range_gpa: tuple[float, float] | None = None
 
     def index(self, name: str) -> int:
         """Position of an endmember; raises :class:`InputError` for unknown names."""
@@ -175,8 +177,10 @@ def _manifest(directory: Path) -> dict[str, Any]:
     for key in ("id", "title", "oxides", "files", "validity"):
         if key not in man:
             raise DatasetError(f"{path.name}: missing key {key!r}")
-    for key in ("pressure_gpa", "temperature_k"):
+    for key in ("pressure_gpa", "temperature_k", "melt_model_pressure_gpa"):
         rng = man["validity"].get(key)
+        if key == "melt_model_pressure_gpa" and rng is None:
+            continue
         if not (isinstance(rng, list) and len(rng) == 2 and rng[0] < rng[1]):
             raise DatasetError(f"{path.name}: validity.{key} must be [low, high] with low < high")
     return man
@@ -313,6 +317,8 @@ def load_dataset_dir(directory: Path) -> Dataset:
         temperature_range_k=tuple(man["validity"]["temperature_k"]),
         endmembers=params, info=infos, stoichiometry=stoich[:, : len(oxides)],
         in_system=~np.any(stoich[:, len(oxides) :] > 0, axis=1), extra=extra,
+        melt_model_pressure_range_gpa=(tuple(man["validity"]["melt_model_pressure_gpa"])
+                                       if "melt_model_pressure_gpa" in man["validity"] else None),
     )
 
 

@@ -1,4 +1,5 @@
-"""Validity domain checks: refuse pressures and temperatures outside a dataset's range."""
+"""Validity domain checks: refuse pressures and temperatures outside a dataset's range, and flag
+results that lie inside it but outside the range over which its melt model is calibrated."""
 
 from __future__ import annotations
 
@@ -19,3 +20,13 @@ def check_conditions(dataset: Dataset, pressure_gpa, temperature_k, p_field="pre
             raise OutOfDomainError(field, "must be a finite number")
         if np.any(arr < lo) or np.any(arr > hi):
             raise OutOfDomainError(field, f"must lie within the validity domain of {dataset.id}: {lo}-{hi} {unit}")
+
+
+def melt_model_warnings(dataset: Dataset, pressure_gpa) -> list[str]:
+    """A warning if any pressure lies above the dataset's calibrated melt-model range (else none)."""
+    rng = dataset.melt_model_pressure_range_gpa
+    if rng is None or not np.any(np.asarray(pressure_gpa, float) > rng[1]):
+        return []
+    return [f"above {rng[1]:g} GPa the melt model of {dataset.id} is extrapolated beyond its calibration: "
+            "solidus, liquidus, melt fractions and latent heats there are unreliable (subsolidus assemblages "
+            "still follow the experiments; see the dataset page, validity domain and known weaknesses)"]

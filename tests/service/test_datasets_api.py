@@ -19,7 +19,8 @@ def test_dataset_list_describes_every_shipped_dataset(client):
         "title": ds.title,
         "oxides": list(ds.oxides),
         "endmember_count": len(ds.endmembers.names),
-        "validity": {"pressure_gpa": list(ds.pressure_range_gpa), "temperature_k": list(ds.temperature_range_k)},
+        "validity": {"pressure_gpa": list(ds.pressure_range_gpa), "temperature_k": list(ds.temperature_range_k),
+                     "melt_model_pressure_gpa": list(ds.melt_model_pressure_range_gpa)},
     }
 
 
