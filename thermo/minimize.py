@@ -449,6 +449,8 @@ class _PolishLayout:
     template: np.ndarray  # (nv + r, nv + r) Jacobian with the constant coupling blocks filled in
     pure_g0: np.ndarray  # (nv,) standard μ of pure-phase variables (0 elsewhere)
     blocks: list  # (slice, kernel args) of each solution phase
+    pure_idx: np.ndarray  # positions of the pure-phase variables
+    twins: bool  # two instances of one solution present (they may have to be merged)
 
     @classmethod
     def of(cls, solver: _Solver, phases: list[PhaseState]) -> _PolishLayout:
@@ -476,7 +478,9 @@ class _PolishLayout:
         template = np.zeros((nv + c, nv + c))
         template[:nv, nv:] = -ab
         template[nv:, :nv] = ab.T
-        return cls(offs, is_log, stoich, basis, template, pure_g0, blocks)
+        models = [ph.solution_index for ph in phases if ph.solution_index >= 0]
+        return cls(offs, is_log, stoich, basis, template, pure_g0, blocks, np.flatnonzero(~is_log),
+                   len(set(models)) < len(models))
 
 
 def _polish_system(solver: _Solver, lay: _PolishLayout, z, mu_perp):
@@ -543,12 +547,12 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         z = np.concatenate([*(ph.amount_mol for ph in phases), mu_r])
         r, jac, mass = _polish_system(solver, lay, z, mu_perp)
         nv = int(offs[-1])
-        totals_phase = np.array([ph.amount_mol.sum() for ph in phases])
+        totals_phase = np.add.reduceat(z[:nv], offs[:-1])
         negligible = np.flatnonzero(totals_phase < 1e-12 * scale_b)
         if negligible.size and len(phases) > 1:
             del phases[int(negligible[0])]
             continue
-        if _merge_twins(solver, phases):
+        if lay.twins and _merge_twins(solver, phases):
             continue
         mass_ok = np.abs(mass).max() < solver.opt.mass_tol * scale_b
         if mass_ok and np.abs(r[:nv]).max() < 1e-7:
@@ -560,11 +564,14 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         r_live = np.where(frozen, 0.0, r[:nv])
         if mass_ok and np.abs(r_live).max() < 1e-7:
             return phases, mu_full
-        jac[:, :nv][:, is_log] *= amounts[is_log]
-        act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
-        dz = np.zeros(len(z))
+        jac[:, :nv] *= np.where(is_log, amounts, 1.0)
         try:
-            dz[act] = np.linalg.solve(jac[np.ix_(act, act)] if frozen.any() else jac, -r[act])
+            if frozen.any():
+                act = np.concatenate([~frozen, np.ones(len(mu_r), bool)])
+                dz = np.zeros(len(z))
+                dz[act] = np.linalg.solve(jac[np.ix_(act, act)], -r[act])
+            else:
+                dz = np.linalg.solve(jac, -r)
         except np.linalg.LinAlgError:
             return None
         if not np.all(np.isfinite(dz)):
@@ -572,7 +579,7 @@ def _polish(solver: _Solver, phases: list[PhaseState], mu0):
         step = dz[:nv]
         step[is_log] = np.clip(step[is_log], -4.0, 2.0)
         alpha = 1.0
-        pure_idx = np.flatnonzero(~is_log)
+        pure_idx = lay.pure_idx
         new_pure = amounts[pure_idx] + alpha * step[pure_idx]
         if pure_idx.size and new_pure.min() < 0.0:
             with np.errstate(divide="ignore", invalid="ignore"):
