@@ -322,7 +322,8 @@ def _bw_entropy(q, n, factor, r_gas):
 
 @njit(cache=True)
 def _bw_terms(q, p, t, dh, dv, w, wv, n, factor, r_gas):
-    """G, ∂G/∂Q, ∂²G/∂Q² of the Bragg-Williams model at one point (as :func:`thermo.ordering._bw_g`)."""
+    """G, ∂G/∂Q, ∂²G/∂Q² of the Bragg-Williams model at one point (Holland & Powell 1996, Am. Mineral. 81:1413):
+    G = (ΔH + PΔV)(1 − Q) + (W + PW_V)Q(1 − Q) − T·S_conf(Q)."""
     s, ds, d2s = _bw_entropy(q, n, factor, r_gas)
     eh = dh + p * dv
     ew = w + p * wv

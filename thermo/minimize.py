@@ -418,10 +418,6 @@ def _name_instances(phases):
 
 
 # --------------------------------------------------------------- polish stage
-def _assemblage_basis(solver: _Solver, phases: list[PhaseState]) -> np.ndarray:
-    return assemblage_basis(solver.s, phases)
-
-
 def assemblage_basis(system: PhaseSystem, phases: list[PhaseState]) -> np.ndarray:
     """Orthonormal basis (c, r) of the compositions the present phases span (cached per phase set)."""
     cache = system.scratch.setdefault("assemblage_basis", {})
@@ -458,7 +454,7 @@ class _PolishLayout:
         sizes = [len(ph.amount_mol) for ph in phases]
         offs = np.concatenate([[0], np.cumsum(sizes)]).astype(int)
         nv = int(offs[-1])
-        basis = _assemblage_basis(solver, phases)
+        basis = assemblage_basis(solver.s, phases)
         c = basis.shape[1]
         is_log = np.zeros(nv, bool)
         pure_g0 = np.zeros(nv)

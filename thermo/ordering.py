@@ -72,53 +72,9 @@ def landau(pressure_pa, temperature_k, tc0_k, smax, vmax) -> OrderingTerms:
     return OrderingTerms(g, s, v, cp, dv_dt, dv_dp)
 
 
-def _site_fractions(q, n):
-    xa1 = (1.0 + n * q) / (1.0 + n)
-    xb1 = n * (1.0 - q) / (1.0 + n)
-    xa2 = (1.0 - q) / (1.0 + n)
-    xb2 = (n + q) / (1.0 + n)
-    return xa1, xb1, xa2, xb2
-
-
-def _xlogx(x):
-    return np.where(x > 0.0, x * np.log(np.where(x > 0.0, x, 1.0)), 0.0)
-
-
-def _bw_entropy(q, n, factor):
-    """Configurational entropy [J/(mol K)] and its first two Q-derivatives."""
-    xa1, xb1, xa2, xb2 = _site_fractions(q, n)
-    s = -R * factor * (_xlogx(xa1) + _xlogx(xb1) + n * (_xlogx(xa2) + _xlogx(xb2)))
-    k = n / (1.0 + n)
-    ds = -R * factor * k * (np.log(xa1 / xb1) - np.log(xa2 / xb2))
-    d2s = -R * factor * k * (k / xa1 + k / xb1 + 1.0 / ((1.0 + n) * xa2) + 1.0 / ((1.0 + n) * xb2))
-    return s, ds, d2s
-
-
-def _bw_g(q, p, t, dh, dv, w, wv, n, factor):
-    s, ds, d2s = _bw_entropy(q, n, factor)
-    eh, ew = dh + p * dv, w + p * wv
-    g = eh * (1.0 - q) + ew * q * (1.0 - q) - t * s
-    gq = -eh + ew * (1.0 - 2.0 * q) - t * ds
-    gqq = -2.0 * ew - t * d2s
-    return g, gq, gqq, s, ds
-
-
+#: Order-parameter grid that brackets the global minimum of the Bragg-Williams G before Newton refines it
+#: (thermo.kernels.bragg_williams_order): regular to 0.99, then logarithmically closer to full order.
 Q_GRID = np.concatenate([np.linspace(0.0, 0.99, 100), 1.0 - np.logspace(-2.3, -13, 24)])
-
-
-def equilibrium_order(pressure_pa, temperature_k, dh, dv, w, wv, n, factor, iterations: int = 40):
-    """Order parameter Q in [0, 1) minimizing the Bragg-Williams G (elementwise over broadcast inputs).
-
-    A grid over Q brackets the global minimum; safeguarded Newton steps on
-    ∂G/∂Q (bisection when a step leaves the bracket) refine it to round-off
-    (compiled: :func:`thermo.kernels.bragg_williams_order`).
-    """
-    arrays = np.broadcast_arrays(
-        np.asarray(pressure_pa, float), np.asarray(temperature_k, float), dh, dv, w, wv, n, factor
-    )
-    flat = [np.ascontiguousarray(a, dtype=float).ravel() for a in arrays]
-    q = kernels.bragg_williams_order(*flat, Q_GRID, R, iterations)
-    return q.reshape(arrays[0].shape)
 
 
 def _bw_state(pressure_pa, temperature_k, dh, dv, w, wv, n, factor):
