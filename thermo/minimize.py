@@ -519,6 +519,17 @@ def _merge_twins(solver: _Solver, phases: list[PhaseState], tol: float = 1e-5) -
     return False
 
 
+def _seeded(phases: list[PhaseState], fraction: float = 1e-9) -> list[PhaseState]:
+    """Copies of ``phases`` whose solution endmembers below ``fraction`` of their phase are raised to it."""
+    out = []
+    for p in phases:
+        n = np.asarray(p.amount_mol, float)
+        if p.solution_index >= 0 and n.size > 1:
+            n = np.maximum(n, fraction * n.sum())
+        out.append(PhaseState(p.name, p.model, p.solution_index, n.copy()))
+    return out
+
+
 def _polish(solver: _Solver, phases: list[PhaseState], mu0):
     """Newton solution of μ_i(phase) = a_i·μ and mass balance, to round-off.
 
@@ -732,6 +743,10 @@ def equilibrate(
         polished = _polish(solver, phases, mu)
         if polished is None:
             polished = _polish(solver, _phases_from_lp(solver, cols, lam, np.inf), mu)
+        if polished is None:
+            # endmembers at exactly zero leave chemical potentials undetermined (degenerate dual of a
+            # bulk on a face of the liquid's composition space): seed them and let the Newton settle them
+            polished = _polish(solver, _seeded(_phases_from_lp(solver, cols, lam, np.inf)), mu)
         if polished is None:
             diag["polish_failures"] = diag.get("polish_failures", 0) + 1
             setbacks += 1

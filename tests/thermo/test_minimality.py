@@ -190,3 +190,24 @@ def test_a_bulk_just_off_a_join_is_not_refused_as_outside_the_system():
         eq = equilibrate(system, 2e9, t, b)
         assert eq.diagnostics["mass_balance_residual"] < 1e-10
         assert {p.name for p in eq.phases} <= {"liquid", "high_albite", "corundum"}
+
+
+def test_a_liquid_on_a_join_of_its_species_is_found_from_a_cold_start():
+    """An60Di40 (wt %) with liquid, diopside and anorthite at 1 bar, 1980 and 2000 K (row D03 of
+    calibration/experiments.csv, above its liquidus): one homogeneous liquid of diopside and anorthite
+    species. The other liquid species are absent, which leaves some chemical potentials undetermined
+    by the liquid alone; the cold solve once ran out of iterations here."""
+    m = oxide_molar_mass_g_per_mol
+    di = 400.0 / (m("CaO") + m("MgO") + 2 * m("SiO2"))  # moles in 1 kg: 40 wt% CaMgSi2O6, 60 wt% CaAl2Si2O8
+    an = 600.0 / (m("CaO") + m("Al2O3") + 2 * m("SiO2"))
+    moles = {"CaO": di + an, "MgO": di, "Al2O3": an, "SiO2": 2.0 * (di + an)}
+    bulk = np.array([moles.get(o, 0.0) for o in DS.oxides])
+    system = build_system(DS, bulk, phases=["liquid", "diopside", "anorthite"])
+    b = bulk[system.component_index]
+    for t in (1980.0, 2000.0):
+        eq = equilibrate(system, 1e5, t, b)
+        assert [p.name for p in eq.phases] == ["liquid"], t
+        assert eq.diagnostics["mass_balance_residual"] < 1e-10
+        x = eq.phases[0].amount_mol / eq.phases[0].amount_mol.sum()
+        names = list(system.solutions[0].model.endmembers)
+        assert x[names.index("diopside_liquid")] + x[names.index("anorthite_liquid")] > 1.0 - 1e-6
