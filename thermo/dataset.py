@@ -210,15 +210,15 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
     reference temperature; they are turned into factors on the endmembers.csv V0 and K0 (which
     stay as recalled). An entry may also replace the liquid's K′ (``k_prime``, where the melting
     data demand it; docs/liquid-volumes.md). Without the file every liquid keeps factors 1, its
-    recalled K′ and the default β.
+    recalled K′ and the default Anderson–Grüneisen δ (thermo.liquid_eos).
     """
-    from thermo.liquid_eos import DEFAULT_DLNK_DT_PER_K, one_bar_state
+    from thermo.liquid_eos import DEFAULT_ANDERSON_GRUNEISEN_DELTA, one_bar_state
 
     table = table or {}
-    beta = float(table.get("bulk_modulus_temperature_coefficient_per_k", DEFAULT_DLNK_DT_PER_K))
-    if not (math.isfinite(beta) and 0.0 <= beta < 1e-3):
-        raise DatasetError("liquid_volumes.toml: bulk_modulus_temperature_coefficient_per_k must be in [0, 1e-3)")
-    out = np.tile([1.0, 1.0, beta], (len(params.names), 1))
+    delta = table.get("anderson_gruneisen_delta", DEFAULT_ANDERSON_GRUNEISEN_DELTA)
+    if not (isinstance(delta, int | float) and math.isfinite(delta) and 0.0 <= delta <= 10.0):
+        raise DatasetError("liquid_volumes.toml: anderson_gruneisen_delta must be a number in [0, 10]")
+    out = np.column_stack([np.ones(len(params.names)), np.ones(len(params.names)), float(delta) * params.alpha0])
     k_prime = params.k0_prime.copy()
     for name, entry in table.get("liquids", {}).items():
         where = f"liquid_volumes.toml: [liquids.{name}]"
@@ -232,7 +232,8 @@ def apply_liquid_volumes(params: EndmemberParameters, table: dict[str, Any] | No
         if values["reference_temperature_k"] is None or not entry.get("source"):
             raise DatasetError(f"{where}: reference_temperature_k and source are required")
         i = params.names.index(name)
-        v1, k1 = one_bar_state(values["reference_temperature_k"], params.v0[i], params.alpha0[i], params.k0_pa[i], beta)
+        v1, k1 = one_bar_state(values["reference_temperature_k"], params.v0[i], params.alpha0[i], params.k0_pa[i],
+                               out[i, 2])
         if values["volume_cm3_per_mol"] is not None:
             out[i, 0] = values["volume_cm3_per_mol"] * 1e-6 / v1
         if values["bulk_modulus_gpa"] is not None:

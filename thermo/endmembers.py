@@ -40,8 +40,6 @@ import numpy as np
 from thermo import kernels, liquid_eos, ordering
 
 T_REF_K = 298.15
-#: Default relative temperature coefficient β of liquid bulk moduli [1/K] (see thermo.liquid_eos).
-LIQUID_DK_DT_PER_K = liquid_eos.DEFAULT_DLNK_DT_PER_K
 _EINSTEIN_A = 10636.0  # K·J/(mol K): θ = 10636/(S0/n + 6.44), HP2011 Eq. 4
 _EINSTEIN_B = 6.44
 
@@ -66,8 +64,17 @@ class EndmemberParameters:
     k0_dprime_per_pa: np.ndarray
     landau: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))  # rows: tc0, smax, vmax (nan if none)
     order: np.ndarray = field(default_factory=lambda: np.zeros((0, 6)))  # rows: dh, dv, w, wv, n, factor
-    #: rows: volume factor, bulk-modulus factor, β [1/K] of liquids (thermo.liquid_eos); empty: 1, 1, default β
+    #: rows: volume factor, bulk-modulus factor, rate b = δ·α0 [1/K] of K(T) = K0·exp[−b(T − T0)] of liquids
+    #: (thermo.liquid_eos); empty: 1, 1 and the default δ
     liquid_volume: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+
+    @property
+    def liquid_volume_table(self) -> np.ndarray:
+        """``liquid_volume``, or factors 1 and the default Anderson–Grüneisen rate where it is empty."""
+        if self.liquid_volume.size:
+            return self.liquid_volume
+        delta = liquid_eos.DEFAULT_ANDERSON_GRUNEISEN_DELTA
+        return np.column_stack([np.ones(len(self.names)), np.ones(len(self.names)), delta * self.alpha0])
 
     @cached_property
     def compiled_rows(self) -> np.ndarray:
@@ -78,8 +85,7 @@ class EndmemberParameters:
         for i, col in enumerate((self.n_atoms, self.h0, self.s0, self.v0, self.cp_a, self.cp_b, self.cp_c,
                                  self.cp_d, self.alpha0, self.k0_pa, self.k0_prime, self.k0_dprime_per_pa), 1):
             rows[i] = col
-        table = self.liquid_volume if self.liquid_volume.size else np.tile([1.0, 1.0, LIQUID_DK_DT_PER_K], (n, 1))
-        rows[13:16] = table.T
+        rows[13:16] = self.liquid_volume_table.T
         if self.landau.size:
             rows[16:19] = self.landau.T
         if self.order.size:
@@ -178,9 +184,7 @@ def _solid_volume_terms(p, t, prm: EndmemberParameters):
 
 def _liquid_volume_terms(p, t, prm: EndmemberParameters):
     """∫V dP and its derivatives for liquids (analytic; thermo.liquid_eos)."""
-    table = prm.liquid_volume
-    if table.size == 0:
-        table = np.tile([1.0, 1.0, LIQUID_DK_DT_PER_K], (len(prm.names), 1))
+    table = prm.liquid_volume_table
     terms = liquid_eos.tait_liquid(
         p, t, prm.v0 * table[:, 0], prm.alpha0, prm.k0_pa * table[:, 1], prm.k0_prime, table[:, 2]
     )

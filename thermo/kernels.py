@@ -420,7 +420,7 @@ def standard_state_rows(p, temps, prm, t_ref, einstein_a, einstein_b, q_grid, r_
     (Holland & Powell 2011, J. Metamorph. Geol. 29:333, Eqs. 3-5; Holland & Powell 1998, J.
     Metamorph. Geol. 16:309, Eqs. 8-11; Holland & Powell 1996, Am. Mineral. 81:1413), element by
     element, in the same order of operations. ``prm`` (27, n) rows: is_liquid, n_atoms, h0, s0, v0,
-    cp a, b, c, d, α0, K0, K′, K″, liquid volume factor, liquid K factor, liquid β, Landau Tc0,
+    cp a, b, c, d, α0, K0, K′, K″, liquid volume factor, liquid K factor, liquid dlnK/dT rate, Landau Tc0,
     Smax, Vmax (NaN: none), Bragg-Williams ΔH, ΔV, W, Wv, n, factor (NaN: none), and its reference
     G and S at 298.15 K and 1 bar. NaN where an equation of state has no real solution.
     """
@@ -443,12 +443,10 @@ def standard_state_rows(p, temps, prm, t_ref, einstein_a, einstein_b, q_grid, r_
             s = s0 + icpt
             alpha0, k0, kp, kpp = prm[9, e], prm[10, e], prm[11, e], prm[12, e]
             if prm[0, e] > 0.5:  # liquid: isothermal Tait about the 1-bar state (thermo.liquid_eos)
-                v0l, k0l, beta = v0 * prm[13, e], k0 * prm[14, e], prm[15, e]
+                v0l, k0l, rate = v0 * prm[13, e], k0 * prm[14, e], prm[15, e]
                 dt = t - t_ref
-                kk = k0l * (1.0 - beta * dt)
+                kk = k0l * np.exp(-rate * dt)
                 v1 = v0l * np.exp(alpha0 * dt)
-                if not kk > 0.0:
-                    kk = np.nan
                 big_b = kp * (kp + 2.0) / (kp + 1.0)
                 cc = 1.0 / (kp * (kp + 2.0))
                 y = big_b * p / kk
@@ -457,9 +455,9 @@ def standard_state_rows(p, temps, prm, t_ref, einstein_a, einstein_b, q_grid, r_
                 f1 = -kp + (1.0 + kp) * np.exp(-cc * ln1y)
                 f2 = -(1.0 + kp) * cc * np.exp((-cc - 1.0) * ln1y)
                 u = v1 * kk / big_b
-                kappa = -beta * k0l / kk
+                kappa = -rate
                 dg = u * ((alpha0 + kappa) * f - kappa * y * f1)
-                d2g = u * ((alpha0 * alpha0 + 2.0 * alpha0 * kappa) * f - 2.0 * alpha0 * kappa * y * f1
+                d2g = u * ((alpha0 + kappa) ** 2 * f - (2.0 * alpha0 * kappa + kappa**2) * y * f1
                            + kappa**2 * y**2 * f2)
                 gv, sv, cpv = u * f, -dg, -t * d2g
                 v = v1 * f1

@@ -15,7 +15,7 @@ compression from a 1-bar state whose volume and bulk modulus depend on
 temperature (the form recalled for HP2011; see docs/liquid-volumes.md):
 
     V1(T) = V0·exp[α0·(T − T0)]                     volume at zero pressure
-    K(T)  = K0·[1 − β·(T − T0)]                     isothermal bulk modulus at zero pressure
+    K(T)  = K0·[V0/V1(T)]^δ = K0·exp[−δ·α0·(T − T0)]  isothermal bulk modulus at zero pressure
     V(P, T) = V1(T)·[1 − a·(1 − (1 + b·P)^(−c))]    modified Tait, HP2011 Eq. 3
 
 with T0 = 298.15 K and the Tait constants of HP2011 Eq. 3 evaluated at K(T)
@@ -23,28 +23,35 @@ with K″ = −K′/K(T) (the dataset's rule for K″), which reduces them to
 
     a = 1 + K′,   b = K′(K′ + 2)/[(K′ + 1)·K(T)],   c = 1/[K′(K′ + 2)].
 
-β = 1.5·10⁻⁴ /K is the temperature coefficient of the bulk modulus of Holland
-& Powell (1998, J. Metamorph. Geol. 16:309-343), recalled, not verified, for
-the HP2011 liquids. V0 and K0 here are the dataset's values times the
+The temperature law of K is the Anderson–Grüneisen relation with a constant
+isothermal parameter δ_T = −(∂ln K/∂T)_P/α (Anderson O.L. 1967, Phys. Rev. 163:
+1107; Anderson O.L., Isaak D.G. & Oda H. 1992, Rev. Geophys. 30:57), so that
+κ = dln K/dT = −δ·α0 is constant and K never reaches zero. Since
+(∂α/∂P)_T = (∂K/∂T)_P/K², the expansivity then falls with compression at a
+rate tied to the liquid's own α0 (∂ln α/∂ln V = δ_T at zero pressure), as
+first-principles and shock data on silicate liquids show
+(docs/liquid-volumes.md). The per-liquid rate
+``dlnk_dt`` = δ·α0 [1/K] comes from the dataset's global δ
+(``liquid_volumes.toml``). V0 and K0 here are the dataset's values times the
 per-liquid factors of ``liquid_volumes.toml`` (1 where a liquid has no entry).
 
 With y = b·P, F(y) = −K′·y + (1 + K′)·[(1 + y)^(1−c) − 1]/(1 − c),
-u = V1·K/B (B = K′(K′ + 2)/(K′ + 1)), α1 = α0 and κ = dln K/dT = −β/(1 − β(T − T0)):
+u = V1·K/B (B = K′(K′ + 2)/(K′ + 1)), α1 = α0 and κ = dln K/dT (constant):
 
     ∫₀ᴾ V dP = u·F(y)                    V = V1·F′(y)           ∂V/∂P = b·V1·F″(y)
     ∂(∫V dP)/∂T = u·[(α1 + κ)·F − κ·y·F′]
-    ∂²(∫V dP)/∂T² = u·[(α1² + 2α1κ)·F − 2α1κ·y·F′ + κ²·y²·F″]
+    ∂²(∫V dP)/∂T² = u·[(α1 + κ)²·F − (2α1κ + κ²)·y·F′ + κ²·y²·F″]
     ∂V/∂T = V1·[α1·F′ − κ·y·F″]
 
-using dy/dT = −κ·y and dκ/dT = −κ². All derivatives are analytic.
+using d ln u/dT = α1 + κ and dy/dT = −κ·y. All derivatives are analytic.
 
 References
 ----------
 Holland T.J.B. & Powell R. (2011) An improved and extended internally
 consistent thermodynamic dataset for phases of petrological interest,
 involving a new equation of state for solids. J. Metamorph. Geol. 29:333-383.
-Holland T.J.B. & Powell R. (1998) An internally consistent thermodynamic data
-set for phases of petrological interest. J. Metamorph. Geol. 16:309-343.
+Anderson O.L., Isaak D.G. & Oda H. (1992) High-temperature elastic constant
+data on minerals relevant to geophysics. Rev. Geophys. 30:57-90.
 """
 
 from __future__ import annotations
@@ -54,8 +61,9 @@ from dataclasses import dataclass
 import numpy as np
 
 T_REF_K = 298.15
-#: Relative temperature coefficient β of liquid bulk moduli [1/K] (Holland & Powell 1998; recalled).
-DEFAULT_DLNK_DT_PER_K = 1.5e-4
+#: Default Anderson–Grüneisen parameter δ_T of the liquids when a dataset states none (liquid_volumes.toml
+#: states the value in use and why).
+DEFAULT_ANDERSON_GRUNEISEN_DELTA = 4.0
 
 
 @dataclass(frozen=True)
@@ -70,18 +78,17 @@ class LiquidVolumeTerms:
     dv_dp: np.ndarray  # [m³/(mol Pa)]
 
 
-def one_bar_state(temperature_k, v0, alpha0, k0, dlnk_dt=DEFAULT_DLNK_DT_PER_K):
+def one_bar_state(temperature_k, v0, alpha0, k0, dlnk_dt):
     """Volume V1 [m³/mol] and bulk modulus K [Pa] of a liquid at zero pressure.
 
-    V1 = V0·exp[α0(T − T0)], K = K0·[1 − β(T − T0)] (see module docstring).
-    K is NaN where it would not be positive (T ≥ T0 + 1/β, about 7000 K).
+    V1 = V0·exp[α0(T − T0)], K = K0·exp[−b(T − T0)] with b = ``dlnk_dt`` = δ·α0 [1/K]
+    (Anderson–Grüneisen; see module docstring).
     """
     dt = np.asarray(temperature_k, float) - T_REF_K
-    k = k0 * (1.0 - dlnk_dt * dt)
-    return v0 * np.exp(alpha0 * dt), np.where(k > 0.0, k, np.nan)
+    return v0 * np.exp(alpha0 * dt), k0 * np.exp(-dlnk_dt * dt)
 
 
-def tait_liquid(pressure_pa, temperature_k, v0, alpha0, k0, k_prime, dlnk_dt=DEFAULT_DLNK_DT_PER_K):
+def tait_liquid(pressure_pa, temperature_k, v0, alpha0, k0, k_prime, dlnk_dt):
     """Isothermal modified-Tait volume terms of liquid endmembers.
 
     Parameters
@@ -96,18 +103,18 @@ def tait_liquid(pressure_pa, temperature_k, v0, alpha0, k0, k_prime, dlnk_dt=DEF
         Isothermal bulk modulus at 298.15 K, zero pressure [Pa] (already scaled).
     k_prime : array_like
         K′ = dK/dP [-].
-    dlnk_dt : array_like, optional
-        β [1/K], relative decrease of the bulk modulus with temperature.
+    dlnk_dt : array_like
+        b = δ·α0 [1/K], rate of the exponential decrease of the bulk modulus with temperature.
 
     Returns
     -------
     LiquidVolumeTerms
-        NaN where the bulk modulus at zero pressure is not positive or P < −1/b.
+        NaN where P < −1/b (beyond the Tait spinodal).
 
     References
     ----------
     Holland & Powell (2011) J. Metamorph. Geol. 29:333, Eq. 3 (Tait form);
-    Holland & Powell (1998) J. Metamorph. Geol. 16:309 (temperature coefficient of K).
+    Anderson, Isaak & Oda (1992) Rev. Geophys. 30:57 (Anderson–Grüneisen temperature law of K).
     """
     p = np.asarray(pressure_pa, float)
     t = np.asarray(temperature_k, float)
@@ -121,9 +128,9 @@ def tait_liquid(pressure_pa, temperature_k, v0, alpha0, k0, k_prime, dlnk_dt=DEF
     f2 = -(1.0 + k_prime) * c * np.exp((-c - 1.0) * ln1y)  # F''(y)
     u = v1 * k / big_b
     a1 = alpha0
-    kappa = -dlnk_dt * k0 / k  # dlnK/dT of the linear K(T)
+    kappa = -np.asarray(dlnk_dt, float)  # dlnK/dT, constant in T
     dg = u * ((a1 + kappa) * f - kappa * y * f1)
-    d2g = u * ((a1 * a1 + 2.0 * a1 * kappa) * f - 2.0 * a1 * kappa * y * f1 + kappa**2 * y**2 * f2)
+    d2g = u * ((a1 + kappa) ** 2 * f - (2.0 * a1 * kappa + kappa**2) * y * f1 + kappa**2 * y**2 * f2)
     return LiquidVolumeTerms(
         g=u * f,
         s=-dg,

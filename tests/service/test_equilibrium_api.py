@@ -443,7 +443,7 @@ def test_not_converged_is_422_with_diagnostics(module_client, openapi, monkeypat
 
 
 def test_a_state_above_the_calibrated_melt_model_range_carries_a_warning(served):
-    """25 GPa lies inside the validity domain (served) but above the melt model's calibrated 15 GPa."""
+    """25 GPa lies inside the validity domain (served) but above the melt model's calibrated 10 GPa."""
     deep = served["deep-25GPa"]["provenance"]["warnings"]
-    assert any("melt model" in w and "above 15 GPa" in w for w in deep)
+    assert any("melt model" in w and "above 10 GPa" in w for w in deep)
     assert not any("melt model" in w for w in served["melt-10GPa"]["provenance"]["warnings"])
