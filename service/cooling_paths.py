@@ -24,7 +24,7 @@ from service.schemas import CoolingPathRequest, load_json, path_step_count
 from service.serializers import MODEL_ESTIMATE_NOTE, bulk_composition_json, cooling_path_json
 from thermo.dataset import load_dataset
 from thermo.paths import cooling_path
-from thermo.validity import melt_model_warnings
+from thermo.validity import coexisting_liquids_warnings, melt_model_warnings
 
 blueprint = Blueprint("cooling_paths", __name__)
 
@@ -61,8 +61,10 @@ def compute_cooling_path(req: dict[str, Any], progress: Any = None) -> dict[str,
     problem = prepare_problem(req)
     path = cooling_path(problem, req["pressure_gpa"], req["start_k"], req["stop_k"], req["step_k"], req["mode"],
                         trapped_melt_fraction(req) or 0.0, progress=progress)
+    liquids = [sum(ph.is_liquid for ph in point.phases) for point in path.points]
     provenance = build_provenance(problem.dataset, request_parameters(req), problem_warnings(problem, req["phases"])
-                                  + melt_model_warnings(problem.dataset, req["pressure_gpa"]))
+                                  + melt_model_warnings(problem.dataset, req["pressure_gpa"])
+                                  + coexisting_liquids_warnings(liquids, "at some rows of the path"))
     return {
         **cooling_path_json(path),
         "start_k": req["start_k"], "stop_k": req["stop_k"], "step_k": req["step_k"],

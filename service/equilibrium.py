@@ -23,7 +23,7 @@ from thermo.assemblage import Assemblage
 from thermo.dataset import load_dataset
 from thermo.equilibrium import Problem, prepare, solve_point
 from thermo.phases import default_phase_names
-from thermo.validity import melt_model_warnings
+from thermo.validity import coexisting_liquids_warnings, melt_model_warnings
 
 blueprint = Blueprint("equilibrium", __name__)
 
@@ -108,7 +108,8 @@ def compute_equilibrium(req: dict[str, Any], progress: Any = None) -> dict[str, 
     _, assemblage = solve_point(problem, req["pressure_gpa"], req["temperature_k"])
     provenance = build_provenance(problem.dataset, request_parameters(req),
                                   result_warnings(problem, req["phases"], assemblage)
-                                  + melt_model_warnings(problem.dataset, req["pressure_gpa"]))
+                                  + melt_model_warnings(problem.dataset, req["pressure_gpa"])
+                                  + coexisting_liquids_warnings(sum(ph.is_liquid for ph in assemblage.phases)))
     return {
         "pressure_gpa": req["pressure_gpa"],
         "temperature_k": req["temperature_k"],

@@ -30,3 +30,20 @@ def melt_model_warnings(dataset: Dataset, pressure_gpa) -> list[str]:
     return [f"above {rng[1]:g} GPa the melt model of {dataset.id} is extrapolated beyond its calibration: "
             "solidus, liquidus, melt fractions and latent heats there are unreliable (subsolidus assemblages "
             "still follow the experiments; see the dataset page, validity domain and known weaknesses)"]
+
+
+def coexisting_liquids_warnings(liquid_counts, where: str = "") -> list[str]:
+    """A warning if any state has more than one liquid (``liquid_counts``: number of liquid phases per state).
+
+    The default melt model has a miscibility gap along Mg2SiO4-MgSiO3 liquids (from its large
+    forsterite-enstatite interaction, fitted at 1 bar), stable from about 2150 to 2750 K at every
+    pressure; no liquid immiscibility is observed there (docs/dataset.md, known weaknesses). Results
+    with two liquids say so rather than pass the split off as physics.
+    """
+    counts = np.atleast_1d(np.asarray(liquid_counts, int))
+    if not counts.size or counts.max() < 2:
+        return []
+    place = f" ({where})" if where else ""
+    return [f"two coexisting liquids{place}: the melt model's liquid miscibility gap (Mg2SiO4-MgSiO3-rich "
+            "liquids, about 2150-2750 K) is an artefact of its interaction energies, not an observed immiscibility; "
+            "treat the split and its latent heats as unreliable (see the dataset page, known weaknesses)"]

@@ -447,3 +447,17 @@ def test_a_state_above_the_calibrated_melt_model_range_carries_a_warning(served)
     deep = served["deep-25GPa"]["provenance"]["warnings"]
     assert any("melt model" in w and "above 10 GPa" in w for w in deep)
     assert not any("melt model" in w for w in served["melt-10GPa"]["provenance"]["warnings"])
+
+
+def test_two_coexisting_liquids_are_flagged_as_a_model_artefact(module_client, served):
+    """Mg1.5SiO3.5 (half Mg2SiO4, half MgSiO3 in moles of formula) at 1 bar and 2300 K lies above the
+    olivine liquidus of the join (~2100 K in the model); the melt model splits it into two liquids, which
+    the MgO-SiO2 system does not do (Bowen & Andersen 1914, Am. J. Sci. 37:487: the only two-liquid field
+    of the system lies on the silica-rich side; memory). The result must say so; single-liquid results must not."""
+    join = {"MgO": 150.0 / 2.5, "SiO2": 100.0 / 2.5}  # mol %: 1.5 MgO + 1 SiO2
+    got = post_ok(module_client, body_for(join, 0.0001, 2300.0, basis="mol_percent"))
+    liquids = [ph for ph in got["phases"] if ph["name"].startswith("liquid")]
+    assert len(liquids) == 2
+    assert any("two coexisting liquids" in w for w in got["provenance"]["warnings"])
+    for key in ("melt-10GPa", "melt-1GPa"):
+        assert not any("two coexisting liquids" in w for w in served[key]["provenance"]["warnings"])

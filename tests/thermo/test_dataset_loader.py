@@ -210,3 +210,11 @@ def test_results_above_the_melt_model_range_are_flagged_and_those_inside_are_not
     assert melt_model_warnings(ds, 10.0) == [] and melt_model_warnings(ds, [1.0, 10.0]) == []
     (warning,) = melt_model_warnings(ds, [10.0, 12.0])
     assert "above 10 GPa" in warning and "extrapolated" in warning
+
+
+def test_two_liquids_are_flagged_and_one_is_not():
+    from thermo.validity import coexisting_liquids_warnings
+
+    assert coexisting_liquids_warnings(1) == [] and coexisting_liquids_warnings([0, 1, 1]) == []
+    (warning,) = coexisting_liquids_warnings([1, 2, 1], "at some rows of the path")
+    assert "two coexisting liquids (at some rows of the path)" in warning and "artefact" in warning
