@@ -443,10 +443,11 @@ def test_not_converged_is_422_with_diagnostics(module_client, openapi, monkeypat
 
 
 def test_a_state_above_the_calibrated_melt_model_range_carries_a_warning(served):
-    """25 GPa lies inside the validity domain (served) but above the melt model's calibrated 10 GPa."""
+    """25 and 10 GPa lie inside the validity domain (served) but above the melt model's calibrated 9 GPa."""
     deep = served["deep-25GPa"]["provenance"]["warnings"]
-    assert any("melt model" in w and "above 10 GPa" in w for w in deep)
-    assert not any("melt model" in w for w in served["melt-10GPa"]["provenance"]["warnings"])
+    assert any("melt model" in w and "above 9 GPa" in w for w in deep)
+    assert any("melt model" in w for w in served["melt-10GPa"]["provenance"]["warnings"])
+    assert not any("melt model" in w for w in served["melt-3GPa"]["provenance"]["warnings"])
 
 
 def test_two_coexisting_liquids_are_flagged_as_a_model_artefact(module_client, served):

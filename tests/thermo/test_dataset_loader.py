@@ -193,25 +193,25 @@ def test_manifest_without_required_key_is_refused(dataset_copy):
 
 
 def test_melt_model_range_is_read_and_a_bad_one_refused(dataset_copy):
-    assert load_dataset_dir(dataset_copy).melt_model_pressure_range_gpa == (0.0, 10.0)
+    assert load_dataset_dir(dataset_copy).melt_model_pressure_range_gpa == (0.0, 9.0)
     path = dataset_copy / "manifest.toml"
     text = path.read_text(encoding="utf-8")
-    path.write_text(text.replace("melt_model_pressure_gpa = [0.0, 10.0]", "melt_model_pressure_gpa = [10.0, 0.0]"),
+    path.write_text(text.replace("melt_model_pressure_gpa = [0.0, 9.0]", "melt_model_pressure_gpa = [9.0, 0.0]"),
                     encoding="utf-8")
     with pytest.raises(DatasetError, match=re.escape("validity.melt_model_pressure_gpa must be")):
         load_dataset_dir(dataset_copy)
 
 
 def test_results_above_the_melt_model_range_are_flagged_and_those_inside_are_not():
-    """The calibrated range of the default melt model ends at 10 GPa: above about 11 GPa ferropericlase coexists
-    with peridotite-like liquid at any temperature (docs/dataset.md, validity domain)."""
+    """The calibrated range of the default melt model ends at 9 GPa: from 10 GPa ferropericlase coexists with
+    peridotite-like liquid above its liquidus, from about 11 GPa at any temperature (docs/dataset.md)."""
     from thermo.dataset import load_dataset
     from thermo.validity import melt_model_warnings
 
     ds = load_dataset()
-    assert melt_model_warnings(ds, 10.0) == [] and melt_model_warnings(ds, [1.0, 10.0]) == []
-    (warning,) = melt_model_warnings(ds, [10.0, 12.0])
-    assert "above 10 GPa" in warning and "extrapolated" in warning
+    assert melt_model_warnings(ds, 9.0) == [] and melt_model_warnings(ds, [1.0, 9.0]) == []
+    (warning,) = melt_model_warnings(ds, [9.0, 10.0])
+    assert "above 9 GPa" in warning and "extrapolated" in warning
 
 
 def test_two_liquids_are_flagged_and_one_is_not():
