@@ -23,7 +23,9 @@ from service.client import HeatpathClient, HeatpathClientError, composition
 HERE = Path(__file__).resolve().parent
 #: Invented bulk compositions [wt %].
 KESTREL_IV = composition({"SiO2": 45.5, "Al2O3": 4.5, "FeO": 8.5, "MgO": 37.5, "CaO": 3.5, "Na2O": 0.5})
-WREN = composition({"SiO2": 45.0, "Al2O3": 28.0, "FeO": 4.5, "MgO": 5.0, "CaO": 16.0, "Na2O": 1.5})
+#: Wren's is the anorthositic bulk of the dataset page's crystallization table; a silica-poorer one (45 SiO2,
+#: 28 Al2O3) is nepheline-normative and precipitates spurious nepheline above its liquidus (docs/dataset.md).
+WREN = composition({"SiO2": 48.0, "Al2O3": 27.0, "FeO": 4.0, "MgO": 4.0, "CaO": 15.5, "Na2O": 1.5})
 
 
 def show_point(hp: HeatpathClient) -> None:
