@@ -108,16 +108,19 @@ def _curve_rows():
     return list(csv.DictReader(lines))
 
 
-def _alternatives(text):
-    """'a|b+c|0.5*d' -> [{a: 1}, {b: 1, c: 1}, {d: 0.5}] (the layout of melting_curves.csv)."""
-    out = []
-    for alt in text.split("|"):
-        combo = {}
-        for term in alt.split("+"):
-            factor, _, name = term.strip().rpartition("*")
-            combo[name] = combo.get(name, 0.0) + (float(factor) if factor else 1.0)
-        out.append(combo)
-    return out
+def _fit_script():
+    """calibration/fit_liquid_volumes.py as a module (its CSV parser and the fit itself)."""
+    import importlib.util
+
+    path = Path(__file__).resolve().parents[2] / "calibration" / "fit_liquid_volumes.py"
+    spec = importlib.util.spec_from_file_location("fit_liquid_volumes", path)
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+FIT = _fit_script()
+_alternatives = FIT.parse_solids  # 'a|b+c|0.5*d' -> [{a: 1}, {b: 1, c: 1}, {d: 0.5}] (melting_curves.csv layout)
 
 
 def _assemblage_gap(params, liquid, alternatives, pressure_pa, temperature_k):
@@ -358,12 +361,7 @@ def test_liquid_volumes_file_k_prime_replaces_only_that_liquid(params):
 def test_volume_fit_reproduces_the_shipped_liquid_volumes(liquid):
     """calibration/fit_liquid_volumes.py, rerun on calibration/melting_curves.csv, gives the liquid_volumes.toml
     entry (rounded there to 3-4 digits): the calibration is reproducible, not hand-tuned."""
-    import importlib.util
-
-    path = Path(__file__).resolve().parents[2] / "calibration" / "fit_liquid_volumes.py"
-    spec = importlib.util.spec_from_file_location("fit_liquid_volumes", path)
-    fit = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(fit)
+    fit = FIT
     table = load_dataset().extra["liquid_volumes"]
     rows = [r for r in fit.read_curves() if r["liquid"] == liquid and r["role"] == "fit"]
     model = fit.MODEL[liquid]
