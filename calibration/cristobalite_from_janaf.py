@@ -33,7 +33,6 @@ Method:
 
 from __future__ import annotations
 
-import math
 import sys
 from pathlib import Path
 
@@ -47,7 +46,7 @@ import polars as pl  # noqa: E402
 from scipy.optimize import brentq  # noqa: E402
 
 from thermo.dataset import load_dataset  # noqa: E402
-from thermo.endmembers import standard_state  # noqa: E402
+from thermo.endmembers import cp_integrals, standard_state  # noqa: E402
 
 ONE_BAR_PA = 1.0e5
 T0 = 298.15
@@ -82,14 +81,6 @@ def fit_cp() -> np.ndarray:
     return coef
 
 
-def cp_integrals(coef, t):
-    a, b, c, d = coef
-    icp = a * (t - T0) + 0.5 * b * (t**2 - T0**2) - c * (1 / t - 1 / T0) + 2 * d * (math.sqrt(t) - math.sqrt(T0))
-    icpt = (a * math.log(t / T0) + b * (t - T0) - 0.5 * c * (1 / t**2 - 1 / T0**2)
-            - 2 * d * (1 / math.sqrt(t) - 1 / math.sqrt(T0)))
-    return icp, icpt
-
-
 def main() -> int:
     coef = fit_cp()
     ds = load_dataset()
@@ -97,7 +88,7 @@ def main() -> int:
     dh, dsj, _ = janaf_difference(T_ANCHOR_K)
     h_a = float(qz.h_j_per_mol[0]) + dh
     s_a = float(qz.s_j_per_mol_k[0]) + dsj
-    icp, icpt = cp_integrals(coef, T_ANCHOR_K)
+    _, icp, icpt = (float(x) for x in cp_integrals(T_ANCHOR_K, *coef))
     h0, s0 = h_a - icp, s_a - icpt
     print(f"anchor {T_ANCHOR_K:.0f} K: JANAF cristobalite - quartz dH {dh:.1f} J/mol, dS {dsj:.3f} J/(mol K)")
     print(f"endmembers.csv: h0_j_per_mol {h0:.0f}, s0_j_per_mol_k {s0:.3f}, v0_m3_per_mol {V0_CM3 * 1e-6:.4e}, "

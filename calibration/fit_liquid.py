@@ -142,14 +142,11 @@ def starting_parameters(species: list[str]) -> tuple[LiquidParameters, list[str]
         names.append(f"wh:{a}|{b}")
         priors[f"wh:{a}|{b}"] = (0.0, width)
         params.w_h[(a, b)] = 0.0
-    for s, prior in MODEL["entropy_shifts"].items():
-        names.append(f"ds:{s}")
-        priors[f"ds:{s}"] = prior
-        params.ds[s] = prior[0]
-    for s, prior in MODEL["enthalpy_shifts"].items():
-        names.append(f"dh:{s}")
-        priors[f"dh:{s}"] = prior
-        params.dh[s] = prior[0]
+    for kind, key in (("ds", "entropy_shifts"), ("dh", "enthalpy_shifts")):
+        for s, prior in MODEL[key].items():
+            names.append(f"{kind}:{s}")
+            priors[f"{kind}:{s}"] = prior
+            getattr(params, kind)[s] = prior[0]
     return params, names, priors
 
 
