@@ -28,9 +28,9 @@ def melt_model_warnings(dataset: Dataset, pressure_gpa) -> list[str]:
     if rng is None or not np.any(np.asarray(pressure_gpa, float) > rng[1]):
         return []
     return [f"above {rng[1]:g} GPa the melt model of {dataset.id} is extrapolated beyond its calibration: "
-            "solidus, liquidus, melt fractions and latent heats there are unreliable; from about 11 GPa its melts "
-            "are too poor in silica activity, so ferropericlase and jadeite-rich clinopyroxene beside a liquid "
-            "are model artefacts (subsolidus assemblages still follow the experiments; see the dataset page, "
+            "solidus, liquidus, melt fractions and latent heats there are unreliable; from about 11 GPa the "
+            "silica activity of its melts is too low, so ferropericlase and jadeite-rich clinopyroxene beside a "
+            "liquid are model artefacts (subsolidus assemblages still follow the experiments; see the dataset page, "
             "validity domain and known weaknesses)"]
 
 
