@@ -64,9 +64,9 @@ OUTPUT_TOML = DATA_DIR / "liquid_calibration.toml"
 RESIDUALS_CSV = HERE / "residuals.csv"
 DOC = ROOT / "docs" / "dataset.md"
 
-FO, FA, EN, DI, AN, AB, Q, COR = (
+FO, FA, EN, DI, AN, AB, Q, COR, NE = (
     "forsterite_liquid", "fayalite_liquid", "enstatite_liquid", "diopside_liquid",
-    "anorthite_liquid", "albite_liquid", "silica_liquid", "corundum_liquid",
+    "anorthite_liquid", "albite_liquid", "silica_liquid", "corundum_liquid", "nepheline_liquid",
 )
 
 #: Why a fixed mixing-unit count departs from the one-unit-per-eight-oxygens rule.
@@ -85,7 +85,7 @@ MODEL = {
     # with olivine does not depend on the liquid's Fe/Mg (Roeder & Emslie 1970); and corundum,
     # set to 2: the rule's 0.375 makes aluminous spinel the 1-bar liquidus phase of a
     # peridotite-like melt near 2200 K.
-    "fixed_units": {FO: 2.0, FA: 2.0, AN: 1.0, AB: 1.0, DI: 0.75, EN: 0.75, Q: 0.25, COR: 2.0},
+    "fixed_units": {FO: 2.0, FA: 2.0, AN: 1.0, AB: 1.0, DI: 0.75, EN: 0.75, NE: 0.5, Q: 0.25, COR: 2.0},
     "fitted_units": {},
     # Margules W_H [J/mol] between mixing units (van Laar asymmetry = units): (species, species, prior width).
     # Prior mean 0; width 20 kJ, except where the data demand a strong interaction (stated).

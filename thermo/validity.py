@@ -29,9 +29,9 @@ def melt_model_warnings(dataset: Dataset, pressure_gpa) -> list[str]:
         return []
     return [f"above {rng[1]:g} GPa the melt model of {dataset.id} is extrapolated beyond its calibration: "
             "solidus, liquidus, melt fractions and latent heats there are unreliable; from about 11 GPa the "
-            "silica activity of its melts is too low, so ferropericlase and jadeite-rich clinopyroxene beside a "
-            "liquid are model artefacts (subsolidus assemblages still follow the experiments; see the dataset page, "
-            "validity domain and known weaknesses)"]
+            "silica activity of its olivine-rich melts is too low, so ferropericlase beside a liquid is a model "
+            "artefact (subsolidus assemblages still follow the experiments; see the dataset page, validity domain "
+            "and known weaknesses)"]
 
 
 def coexisting_liquids_warnings(liquid_counts, where: str = "") -> list[str]:

@@ -16,7 +16,8 @@ from thermo.errors import DatasetError, InputError
 
 #: Molar masses [g/mol] from the ``molar_mass_g_mol`` column of reference/endmembers_hp2011.csv
 #: (computed there from IUPAC atomic weights, Prohaska et al. 2022, Pure Appl. Chem. 94:573); cristobalite,
-#: derived in this project from NIST-JANAF and not in that table, is SiO2 like quartz.
+#: derived in this project from NIST-JANAF and not in that table, is SiO2 like quartz; the nepheline liquid, derived
+#: here too (calibration/nepheline_liquid.py), is NaAlSiO4 like nepheline.
 REFERENCE_MOLAR_MASS_G_PER_MOL = {
     "forsterite": 140.691, "fayalite": 203.772, "mg_wadsleyite": 140.691, "fe_wadsleyite": 203.772,
     "mg_ringwoodite": 140.691, "fe_ringwoodite": 203.772, "enstatite": 200.775, "ferrosilite": 263.855,
@@ -31,7 +32,7 @@ REFERENCE_MOLAR_MASS_G_PER_MOL = {
     "wollastonite": 116.160, "mg_bridgmanite": 100.388, "fe_bridgmanite": 131.928, "al_bridgmanite": 101.960,
     "ca_perovskite": 116.160, "mg_akimotoite": 100.388, "forsterite_liquid": 140.691, "fayalite_liquid": 203.772,
     "enstatite_liquid": 200.775, "diopside_liquid": 216.548, "anorthite_liquid": 278.204, "albite_liquid": 262.220,
-    "silica_liquid": 60.084, "corundum_liquid": 101.960,
+    "silica_liquid": 60.084, "corundum_liquid": 101.960, "nepheline_liquid": 142.053,
 }  # fmt: skip
 
 
@@ -57,15 +58,15 @@ def _edit_row(directory: Path, index: int, **changes: str) -> int:
     return index + 2  # line 1 is the header
 
 
-def test_shipped_dataset_loads_with_56_endmembers():
+def test_shipped_dataset_loads_with_57_endmembers():
     ds = load_dataset()
     assert ds.id == DEFAULT_DATASET_ID
     assert DEFAULT_DATASET_ID in available_datasets()
-    assert len(ds.endmembers.names) == 56  # 55 recalled rows + cristobalite derived from JANAF
+    assert len(ds.endmembers.names) == 57  # 55 recalled rows + cristobalite (JANAF) and nepheline liquid (derived)
     assert ds.oxides == ("SiO2", "Al2O3", "FeO", "MgO", "CaO", "Na2O")
     assert 0.0 <= ds.pressure_range_gpa[0] < ds.pressure_range_gpa[1]
     assert 0.0 < ds.temperature_range_k[0] < ds.temperature_range_k[1]
-    assert int(ds.endmembers.is_liquid.sum()) == 8
+    assert int(ds.endmembers.is_liquid.sum()) == 9
 
 
 def test_stoichiometry_and_system_membership():

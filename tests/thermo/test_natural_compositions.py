@@ -103,15 +103,10 @@ def _solidus_k(problem, pressure_gpa: float) -> float:
     return interval.solidus_k
 
 
-@pytest.mark.parametrize("pressure_gpa", [
-    10.0,
-    15.0,
-    pytest.param(20.0, marks=pytest.mark.xfail(strict=True, reason=(
-        "model KLB-1 solidus 2567 K at 20 GPa, 154 K above the Herzberg et al. (2000) fit (2410 K); tolerance 100 K"))),
-    pytest.param(25.0, marks=pytest.mark.xfail(strict=True, reason=(
-        "model KLB-1 solidus 2972 K at 25 GPa, 500 K above the Herzberg et al. (2000) fit (2470 K): ferropericlase "
-        "coexists with the liquid at any temperature above ~11 GPa (docs/dataset.md weaknesses 1, 7)"))),
-])
+# Model: -63, -53, +94 and -5 K at 10, 15, 20, 25 GPa. Above ~20 GPa the model's solidus is where its last sodium
+# host (clinopyroxene; its garnet has no Na) breaks down and a sodic melt (mostly NaAlSiO4 species) appears, so the
+# agreement at 25 GPa is partly fortuitous (docs/dataset.md, weakness 7).
+@pytest.mark.parametrize("pressure_gpa", [10.0, 15.0, 20.0, 25.0])
 def test_fertile_peridotite_solidus_at_high_pressure_follows_herzberg_fit(klb1, pressure_gpa):
     assert _solidus_k(klb1, pressure_gpa) == pytest.approx(_herzberg_2000_solidus_k(pressure_gpa), abs=100.0)
 
@@ -143,7 +138,7 @@ def test_fertile_peridotite_liquidus_is_olivine_at_the_experimental_temperature(
 # 120:207; memory): olivine sinks in such a melt at shallower depth and floats deeper, which decides whether a
 # crystallizing magma ocean stratifies. The checks compare the densities of coexisting olivine and liquid at 6 GPa
 # (5 GPa below the lowest recalled crossover) and 14 GPa (0.5 GPa above the highest, the weaker side). The model's
-# own crossover along the KLB-1 liquidus is at 10.0 GPa (docs/dataset.md, weakness 7), below the recalled range.
+# own crossover along the KLB-1 liquidus is at 9.6 GPa (docs/dataset.md, weakness 7d), below the recalled range.
 @pytest.mark.parametrize(("pressure_gpa", "temperature_k", "olivine_denser"), [(6.0, 2230.0, True),
                                                                               (14.0, 2400.0, False)])
 def test_olivine_sinks_in_peridotite_melt_at_6_gpa_and_floats_at_14_gpa(klb1, pressure_gpa, temperature_k,
