@@ -53,7 +53,7 @@ class SolverOptions:
     check_skip_rt: float = 12.0  # in the final check, skip Newton refinement above this x RT
     warm_skip_rt: float = 1.0  # same, when a warm start supplies last step's best compositions
     check_tol: float = 1e-3  # final minimality check: no D below -check_tol
-    max_outer: int = 40
+    max_outer: int = 60  # 40 ran out near the critical point of the liquid gap (robustness state 576, 50 needed)
     prune_rt: float = 4.0  # after the first programme, drop columns with reduced cost above this x RT
     max_setbacks: int = 3  # failed polish/refine rounds before falling back to column generation alone
     newton_iter: int = 40

@@ -211,3 +211,21 @@ def test_a_liquid_on_a_join_of_its_species_is_found_from_a_cold_start():
         x = eq.phases[0].amount_mol / eq.phases[0].amount_mol.sum()
         names = list(system.solutions[0].model.endmembers)
         assert x[names.index("diopside_liquid")] + x[names.index("anorthite_liquid")] > 1.0 - 1e-6
+
+
+def test_a_state_next_to_the_critical_point_of_the_liquid_gap_is_solved_from_a_cold_start():
+    """State 576 of benchmarks/robustness.py (seed 2026): a silica-rich peridotite-like bulk at 2.225 GPa and
+    2027.83 K, 0.1 K below where a second liquid of nearly the same composition splits off (the Mg2SiO4-MgSiO3
+    liquid gap, docs/dataset.md weakness 3). The solver cycled between one and two liquids and ran out of its
+    former 40 iterations; it needs about 50. The answer is olivine and two liquids, as 0.1 K above."""
+    from thermo.equilibrium import prepare, solve_point
+
+    oxides = {"SiO2": 54.04329537846333, "Al2O3": 5.347558528660314, "FeO": 8.968745472725347,
+              "MgO": 35.84528147805168, "CaO": 2.9246498931689646, "Na2O": 0.4823860943210061}
+    problem = prepare(oxides)
+    eq, _ = solve_point(problem, 2.2252531614587205, 2027.830072345853)
+    above, _ = solve_point(problem, 2.2252531614587205, 2027.930072345853)
+    assert sorted(p.model for p in eq.phases) == sorted(p.model for p in above.phases) == ["liquid", "liquid",
+                                                                                           "olivine"]
+    assert eq.diagnostics["mass_balance_residual"] < 1e-10
+    assert eq.diagnostics["min_absent_driving_force_j_per_mol"] > 0.0
