@@ -63,10 +63,6 @@ def _liquid_only(ds, bulk):
     return Calculator(ds, _bulk_mol(ds, bulk), phases=["liquid"])
 
 
-def _forces(system, eq, names):
-    return {n: driving_force(system, n, eq) for n in names}
-
-
 def saturation_temperature(liq: Calculator, full_system, names, pressure_gpa: float) -> float | None:
     """T* at which the most stable of ``names`` saturates against the all-liquid state (None: not in range)."""
 
@@ -101,13 +97,11 @@ def report(ds, pressures: list[float]) -> None:
                 continue
             eq = liq.solve(p, t_star)
             rho = assemblage_properties(eq).phases[0].density_kg_per_m3
-            forces = sorted(_forces(full, eq, solids).items(), key=lambda kv: kv[1])
-            worst = ", ".join(f"{n} {v / 1000:+.1f}" for n, v in forces[:5])
-            top, named = {n for n, _ in forces[:5]}, dict(forces)
-            extra = [f"{n} {named[n] / 1000:+.1f}" for n in ALWAYS_SHOWN if n in named and n not in top]
-            worst += "; " + ", ".join(extra) if extra else ""
+            forces = sorted(((n, driving_force(full, n, eq)) for n in solids), key=lambda kv: kv[1])
+            shown = forces[:5] + [(n, d) for n, d in forces[5:] if n in ALWAYS_SHOWN]
+            listed = ", ".join(f"{n} {d / 1000:+.1f}" for n, d in shown)
             print(f"  {p:5.1f} GPa: T* = {t_star:6.0f} K, liquid {rho:5.0f} kg/m3; "
-                  f"most stable solids (D, kJ/mol): {worst}", flush=True)
+                  f"D (kJ/mol), most stable first: {listed}", flush=True)
 
 
 def main(argv: list[str]) -> int:
