@@ -60,9 +60,8 @@ K_PRIME = 6.0
 REFERENCE_T_K = 1673.0
 
 
-def derived_values() -> dict[str, float]:
+def derived_values(ds) -> dict[str, float]:
     """H0, S0, Cp, α0 and the 1673 K volume and bulk modulus of the nepheline-composition liquid."""
-    ds = load_dataset()
     ne = standard_state(ds.endmembers.subset(["nepheline"]), ONE_BAR_PA, TM_K)
     h_ne, s_ne = float(ne.h_j_per_mol[0]), float(ne.s_j_per_mol_k[0])
     h0 = h_ne + DH_FUS_J - CP_J * (TM_K - T0)
@@ -75,7 +74,8 @@ def derived_values() -> dict[str, float]:
 
 
 def main() -> int:
-    d = derived_values()
+    ds = load_dataset()
+    d = derived_values(ds)
     print(f"dataset nepheline at {TM_K:.0f} K: H {d['h_ne'] / 1e3:.3f} kJ/mol, S {d['s_ne']:.3f} J/(mol K)")
     print(f"fusion: dH {DH_FUS_J / 1e3:.1f} kJ/mol, dS {DH_FUS_J / TM_K:.3f} J/(mol K); liquid Cp {CP_J:.2f}")
     print(f"endmembers.csv: h0 {d['h0']:.0f}, s0 {d['s0']:.3f}, v0 {d['v0_cm3'] * 1e-6:.5e}, cp_a {CP_J:.2f}, "
@@ -83,7 +83,6 @@ def main() -> int:
     print(f"liquid_volumes.toml: reference_temperature_k = {REFERENCE_T_K:.0f}, volume_cm3_per_mol = "
           f"{d['v_1673_cm3']:.2f}, bulk_modulus_gpa = {d['k_1673_gpa']:.2f}, k_prime = {K_PRIME}")
 
-    ds = load_dataset()
     if "nepheline_liquid" in ds.endmembers.names:
         sub = ds.endmembers.subset(["nepheline", "nepheline_liquid"])
 
