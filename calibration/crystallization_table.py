@@ -36,8 +36,9 @@ from thermo.dataset import load_dataset  # noqa: E402
 from thermo.errors import HeatpathError  # noqa: E402
 
 #: Invented demo bulks [wt%]. The first and the last are the Kestrel IV and Wren compositions of examples/. An
-#: earlier Wren bulk (45 SiO2, 28 Al2O3) was nepheline-normative, beyond what the liquid species can hold (it
-#: precipitated spurious nepheline above its liquidus), hence this silica-richer invented one.
+#: earlier Wren bulk (45 SiO2, 28 Al2O3) was nepheline-normative, beyond what the liquid species could hold before
+#: the nepheline liquid was added (it precipitated spurious nepheline above its liquidus), hence this silica-richer
+#: invented one.
 BULKS = {
     "Kestrel IV mantle (peridotite-like)": {"SiO2": 45.5, "Al2O3": 4.5, "FeO": 8.5, "MgO": 37.5, "CaO": 3.5,
                                             "Na2O": 0.5},

@@ -59,10 +59,6 @@ T_RANGE_K = (1500.0, 4000.0)
 ALWAYS_SHOWN = ("ferropericlase", "clinopyroxene")
 
 
-def _liquid_only(ds, bulk):
-    return Calculator(ds, _bulk_mol(ds, bulk), phases=["liquid"])
-
-
 def saturation_temperature(liq: Calculator, full_system, names, pressure_gpa: float) -> float | None:
     """T* at which the most stable of ``names`` saturates against the all-liquid state (None: not in range)."""
 
@@ -84,10 +80,10 @@ def saturation_temperature(liq: Calculator, full_system, names, pressure_gpa: fl
 def report(ds, pressures: list[float]) -> None:
     for bulk_name, targets in TARGET.items():
         bulk = BULKS[bulk_name]
-        liq = _liquid_only(ds, bulk)
+        liq = Calculator(ds, _bulk_mol(ds, bulk), phases=["liquid"])
         full = Calculator(ds, _bulk_mol(ds, bulk)).system
-        solids = [n for n in default_phase_names(ds) if n != "liquid"
-                  and (n in full.pure_names or n in [s.name for s in full.solutions])]
+        present = set(full.pure_names) | {s.name for s in full.solutions}
+        solids = [n for n in default_phase_names(ds) if n != "liquid" and n in present]
         names = [n for n in targets if n in solids]
         print(f"\n{bulk_name}: T* = saturation of {' / '.join(names)} against the all-liquid state")
         for p in pressures:

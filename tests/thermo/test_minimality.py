@@ -218,8 +218,6 @@ def test_a_state_next_to_the_critical_point_of_the_liquid_gap_is_solved_from_a_c
     2027.83 K, 0.1 K below where a second liquid of nearly the same composition splits off (the Mg2SiO4-MgSiO3
     liquid gap, docs/dataset.md weakness 3). The solver cycled between one and two liquids and ran out of its
     former 40 iterations; it needs about 50. The answer is olivine and two liquids, as 0.1 K above."""
-    from thermo.equilibrium import prepare, solve_point
-
     oxides = {"SiO2": 54.04329537846333, "Al2O3": 5.347558528660314, "FeO": 8.968745472725347,
               "MgO": 35.84528147805168, "CaO": 2.9246498931689646, "Na2O": 0.4823860943210061}
     problem = prepare(oxides)

@@ -12,6 +12,9 @@ from scipy.optimize import brentq
 
 from thermo.dataset import load_dataset
 from thermo.endmembers import standard_state
+from thermo.equilibrium import prepare, solve_point
+
+from .test_natural_compositions import KLB1_WT_PERCENT
 
 ONE_BAR_PA = 1.0e5
 
@@ -48,10 +51,6 @@ def test_no_clinopyroxene_beside_a_peridotite_melt_far_above_its_solidus(pressur
     # solidus of Herzberg, Raterron & Zhang (2000). Without the nepheline liquid the model kept a jadeite-rich
     # clinopyroxene beside the melt (0.3 wt% for KLB-1 at 20 GPa and 2900 K; 1.5-2 wt% of 70-80 % jadeite in the
     # Na-richer peridotite-like demo bulk).
-    from thermo.equilibrium import prepare, solve_point
-
-    from .test_natural_compositions import KLB1_WT_PERCENT
-
     _, assemblage = solve_point(prepare(KLB1_WT_PERCENT, drop_unsupported=True), pressure_gpa, temperature_k)
     assert "liquid" in {p.name for p in assemblage.phases}
     assert "clinopyroxene" not in {p.name for p in assemblage.phases}
